@@ -1,0 +1,345 @@
+#include "hdf5.hpp"
+
+#include <algorithm>
+#include <cstdio>
+#include <cstring>
+#include <memory>
+
+namespace longrun::h5 {
+
+void silence_library_errors() { H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr); }
+
+void fail(Side side, const std::string& file, const std::string& what) {
+    const std::string message = file + ": " + what;
+    if (side == Side::reading)
+        throw InputError(message);
+    throw OutputError(message);
+}
+
+namespace {
+
+Handle file_access(std::optional<MPI_Comm> comm, const std::string& file, Side side) {
+    Handle fapl(H5Pcreate(H5P_FILE_ACCESS), H5Pclose);
+    if (!fapl.valid())
+        fail(side, file, "cannot create an HDF5 file-access property list");
+    if (comm && H5Pset_fapl_mpio(fapl, *comm, MPI_INFO_NULL) < 0)
+        fail(side, file, "cannot set up MPI-IO access");
+    return fapl;
+}
+
+} // namespace
+
+Handle open_for_reading(const std::string& path, std::optional<MPI_Comm> comm) {
+    silence_library_errors();
+    // H5Fis_accessible tells "not HDF5" apart from "cannot open".
+    FILE* probe = std::fopen(path.c_str(), "rb");
+    if (!probe)
+        fail(Side::reading, path, "cannot open the file for reading (missing or no permission)");
+    std::fclose(probe);
+    Handle fapl = file_access(comm, path, Side::reading);
+    if (H5Fis_hdf5(path.c_str()) <= 0)
+        fail(Side::reading, path, "not an HDF5 file (or a truncated one)");
+    Handle f(H5Fopen(path.c_str(), H5F_ACC_RDONLY, fapl), H5Fclose);
+    if (!f.valid())
+        fail(Side::reading, path, "HDF5 could not open the file (truncated or damaged?)");
+    return f;
+}
+
+Handle create_for_writing(const std::string& path, std::optional<MPI_Comm> comm) {
+    silence_library_errors();
+    Handle fapl = file_access(comm, path, Side::writing);
+    Handle f(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, fapl), H5Fclose);
+    if (!f.valid())
+        fail(Side::writing, path, "cannot create the file (folder missing or not writable?)");
+    return f;
+}
+
+bool exists(hid_t loc, const std::string& path) {
+    // Walk the path so that a missing intermediate group is "absent", not an error.
+    std::string::size_type pos = 0;
+    while (true) {
+        pos = path.find('/', pos + 1);
+        const std::string prefix = path.substr(0, pos);
+        if (!prefix.empty() && prefix != "/" && H5Lexists(loc, prefix.c_str(), H5P_DEFAULT) <= 0)
+            return false;
+        if (pos == std::string::npos)
+            return true;
+    }
+}
+
+Handle open_group(hid_t loc, const std::string& path, const std::string& file) {
+    if (!exists(loc, path))
+        fail(Side::reading, file, "group '" + path + "' is missing");
+    Handle g(H5Gopen2(loc, path.c_str(), H5P_DEFAULT), H5Gclose);
+    if (!g.valid())
+        fail(Side::reading, file, "'" + path + "' is not a group");
+    return g;
+}
+
+Handle open_dataset(hid_t loc, const std::string& path, const std::string& file) {
+    if (!exists(loc, path))
+        fail(Side::reading, file, "dataset '" + path + "' is missing");
+    Handle d(H5Dopen2(loc, path.c_str(), H5P_DEFAULT), H5Dclose);
+    if (!d.valid())
+        fail(Side::reading, file, "'" + path + "' is not a dataset");
+    return d;
+}
+
+Handle create_group(hid_t loc, const std::string& path, const std::string& file) {
+    Handle g(H5Gcreate2(loc, path.c_str(), H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT), H5Gclose);
+    if (!g.valid())
+        fail(Side::writing, file, "cannot create group '" + path + "'");
+    return g;
+}
+
+std::uint64_t length_1d(hid_t dataset, const std::string& file, const std::string& name) {
+    Handle space(H5Dget_space(dataset), H5Sclose);
+    if (!space.valid())
+        fail(Side::reading, file, "cannot read the shape of dataset '" + name + "'");
+    const int rank = H5Sget_simple_extent_ndims(space);
+    if (rank != 1)
+        fail(Side::reading, file,
+             "dataset '" + name + "' has " + std::to_string(rank) +
+                 " dimensions, expected a one-dimensional array");
+    hsize_t dims[1] = {0};
+    H5Sget_simple_extent_dims(space, dims, nullptr);
+    return dims[0];
+}
+
+Numeric numeric_class(hid_t dataset) {
+    Handle type(H5Dget_type(dataset), H5Tclose);
+    switch (H5Tget_class(type)) {
+    case H5T_INTEGER:
+        return H5Tget_sign(type) == H5T_SGN_NONE ? Numeric::unsigned_integer
+                                                 : Numeric::signed_integer;
+    case H5T_FLOAT:
+        return Numeric::floating;
+    default:
+        return Numeric::other;
+    }
+}
+
+bool has_attribute(hid_t loc, const std::string& name) {
+    return H5Aexists(loc, name.c_str()) > 0;
+}
+
+namespace {
+
+Handle open_attribute(hid_t loc, const std::string& name, const std::string& file,
+                      const std::string& object) {
+    if (!has_attribute(loc, name))
+        fail(Side::reading, file, "attribute '" + name + "' of '" + object + "' is missing");
+    Handle a(H5Aopen(loc, name.c_str(), H5P_DEFAULT), H5Aclose);
+    if (!a.valid())
+        fail(Side::reading, file, "cannot open attribute '" + name + "' of '" + object + "'");
+    return a;
+}
+
+std::uint64_t attribute_elements(hid_t attr) {
+    Handle space(H5Aget_space(attr), H5Sclose);
+    const hssize_t n = H5Sget_simple_extent_npoints(space);
+    return n < 0 ? 0 : static_cast<std::uint64_t>(n);
+}
+
+} // namespace
+
+std::string read_string_attribute(hid_t loc, const std::string& name, const std::string& file,
+                                  const std::string& object) {
+    auto list = read_string_list_attribute(loc, name, file, object);
+    if (list.size() != 1)
+        fail(Side::reading, file,
+             "attribute '" + name + "' of '" + object + "' should hold one string");
+    return list.front();
+}
+
+std::vector<std::string> read_string_list_attribute(hid_t loc, const std::string& name,
+                                                    const std::string& file,
+                                                    const std::string& object) {
+    Handle a = open_attribute(loc, name, file, object);
+    Handle type(H5Aget_type(a), H5Tclose);
+    if (H5Tget_class(type) != H5T_STRING)
+        fail(Side::reading, file, "attribute '" + name + "' of '" + object + "' is not text");
+    const std::uint64_t n = attribute_elements(a);
+    if (n > (1u << 20))
+        fail(Side::reading, file, "attribute '" + name + "' of '" + object + "' is too large");
+    std::vector<std::string> out;
+    if (H5Tis_variable_str(type) > 0) {
+        Handle mem(H5Tcopy(H5T_C_S1), H5Tclose);
+        H5Tset_size(mem, H5T_VARIABLE);
+        H5Tset_cset(mem, H5Tget_cset(type));
+        std::vector<char*> raw(n, nullptr);
+        if (H5Aread(a, mem, raw.data()) < 0)
+            fail(Side::reading, file, "cannot read attribute '" + name + "' of '" + object + "'");
+        for (char* s : raw)
+            out.emplace_back(s ? s : "");
+        Handle space(H5Aget_space(a), H5Sclose);
+        H5Dvlen_reclaim(mem, space, H5P_DEFAULT, raw.data());
+    } else {
+        const std::size_t width = H5Tget_size(type);
+        std::vector<char> raw(n * width + 1, '\0');
+        if (H5Aread(a, type, raw.data()) < 0)
+            fail(Side::reading, file, "cannot read attribute '" + name + "' of '" + object + "'");
+        for (std::uint64_t i = 0; i < n; ++i) {
+            const char* s = raw.data() + i * width;
+            out.emplace_back(s, strnlen(s, width));
+        }
+    }
+    return out;
+}
+
+std::uint64_t read_u64_attribute(hid_t loc, const std::string& name, const std::string& file,
+                                 const std::string& object) {
+    Handle a = open_attribute(loc, name, file, object);
+    Handle type(H5Aget_type(a), H5Tclose);
+    if (H5Tget_class(type) != H5T_INTEGER || attribute_elements(a) != 1)
+        fail(Side::reading, file,
+             "attribute '" + name + "' of '" + object + "' should be one integer");
+    std::int64_t as_signed = 0;
+    std::uint64_t value = 0;
+    if (H5Tget_sign(type) == H5T_SGN_NONE) {
+        if (H5Aread(a, H5T_NATIVE_UINT64, &value) < 0)
+            fail(Side::reading, file, "cannot read attribute '" + name + "'");
+    } else {
+        if (H5Aread(a, H5T_NATIVE_INT64, &as_signed) < 0)
+            fail(Side::reading, file, "cannot read attribute '" + name + "'");
+        if (as_signed < 0)
+            fail(Side::reading, file,
+                 "attribute '" + name + "' of '" + object + "' is negative (" +
+                     std::to_string(as_signed) + ")");
+        value = static_cast<std::uint64_t>(as_signed);
+    }
+    return value;
+}
+
+double read_f64_attribute(hid_t loc, const std::string& name, const std::string& file,
+                          const std::string& object) {
+    Handle a = open_attribute(loc, name, file, object);
+    Handle type(H5Aget_type(a), H5Tclose);
+    const auto cls = H5Tget_class(type);
+    if ((cls != H5T_INTEGER && cls != H5T_FLOAT) || attribute_elements(a) != 1)
+        fail(Side::reading, file, "attribute '" + name + "' of '" + object + "' should be a number");
+    double value = 0;
+    if (H5Aread(a, H5T_NATIVE_DOUBLE, &value) < 0)
+        fail(Side::reading, file, "cannot read attribute '" + name + "'");
+    return value;
+}
+
+namespace {
+
+void write_raw_attribute(hid_t loc, const std::string& name, hid_t type, const void* value,
+                         const std::string& file) {
+    if (has_attribute(loc, name))
+        H5Adelete(loc, name.c_str());
+    Handle space(H5Screate(H5S_SCALAR), H5Sclose);
+    Handle a(H5Acreate2(loc, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT), H5Aclose);
+    if (!a.valid() || H5Awrite(a, type, value) < 0)
+        fail(Side::writing, file, "cannot write attribute '" + name + "'");
+}
+
+} // namespace
+
+void write_attribute(hid_t loc, const std::string& name, const std::string& value,
+                     const std::string& file) {
+    write_attribute(loc, name, std::vector<std::string>{value}, file);
+}
+
+void write_attribute(hid_t loc, const std::string& name, std::uint64_t value,
+                     const std::string& file) {
+    write_raw_attribute(loc, name, H5T_NATIVE_UINT64, &value, file);
+}
+
+void write_attribute(hid_t loc, const std::string& name, std::int64_t value,
+                     const std::string& file) {
+    write_raw_attribute(loc, name, H5T_NATIVE_INT64, &value, file);
+}
+
+void write_attribute(hid_t loc, const std::string& name, double value, const std::string& file) {
+    write_raw_attribute(loc, name, H5T_NATIVE_DOUBLE, &value, file);
+}
+
+void write_attribute(hid_t loc, const std::string& name, const std::vector<std::string>& values,
+                     const std::string& file) {
+    if (has_attribute(loc, name))
+        H5Adelete(loc, name.c_str());
+    Handle type(H5Tcopy(H5T_C_S1), H5Tclose);
+    H5Tset_size(type, H5T_VARIABLE);
+    H5Tset_cset(type, H5T_CSET_UTF8);
+    // A single string is stored as a scalar so that tools show it as plain text.
+    Handle space = values.size() == 1 ? Handle(H5Screate(H5S_SCALAR), H5Sclose) : [&] {
+        hsize_t n = values.size();
+        return Handle(H5Screate_simple(1, &n, nullptr), H5Sclose);
+    }();
+    std::vector<const char*> raw;
+    for (const auto& v : values)
+        raw.push_back(v.c_str());
+    Handle a(H5Acreate2(loc, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT), H5Aclose);
+    if (!a.valid() || H5Awrite(a, type, raw.data()) < 0)
+        fail(Side::writing, file, "cannot write attribute '" + name + "'");
+}
+
+namespace {
+
+Handle transfer_list(Access access) {
+    Handle dxpl(H5Pcreate(H5P_DATASET_XFER), H5Pclose);
+    if (access == Access::collective)
+        H5Pset_dxpl_mpio(dxpl, H5FD_MPIO_COLLECTIVE);
+    return dxpl;
+}
+
+// Selects [offset, offset + count) in the file and a matching memory space; an
+// empty selection still lets a rank take part in a collective transfer.
+std::pair<Handle, Handle> select_range(hid_t dataset, std::uint64_t offset, std::uint64_t count) {
+    Handle filespace(H5Dget_space(dataset), H5Sclose);
+    hsize_t n = count;
+    Handle memspace(H5Screate_simple(1, &n, nullptr), H5Sclose);
+    if (count == 0) {
+        H5Sselect_none(filespace);
+        H5Sselect_none(memspace);
+    } else {
+        hsize_t start = offset;
+        H5Sselect_hyperslab(filespace, H5S_SELECT_SET, &start, nullptr, &n, nullptr);
+    }
+    return {std::move(filespace), std::move(memspace)};
+}
+
+} // namespace
+
+void read_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64_t count, void* out,
+                Access access, const std::string& file, const std::string& name) {
+    auto [filespace, memspace] = select_range(dataset, offset, count);
+    Handle dxpl = transfer_list(access);
+    if (H5Dread(dataset, memtype, memspace, filespace, dxpl, out) < 0)
+        fail(Side::reading, file,
+             "cannot read elements " + std::to_string(offset) + ".." +
+                 std::to_string(offset + count) + " of dataset '" + name +
+                 "' (truncated file or unconvertible type?)");
+}
+
+Handle create_dataset(hid_t loc, const std::string& name, hid_t filetype, std::uint64_t length,
+                      const std::string& file, Layout layout) {
+    hsize_t n = length;
+    Handle space(H5Screate_simple(1, &n, nullptr), H5Sclose);
+    Handle dcpl(H5Pcreate(H5P_DATASET_CREATE), H5Pclose);
+    if (layout.chunk > 0 && length > 0) {
+        hsize_t chunk = std::min<std::uint64_t>(layout.chunk, length);
+        H5Pset_chunk(dcpl, 1, &chunk);
+        if (layout.deflate > 0)
+            H5Pset_deflate(dcpl, static_cast<unsigned>(layout.deflate));
+    }
+    Handle d(H5Dcreate2(loc, name.c_str(), filetype, space, H5P_DEFAULT, dcpl, H5P_DEFAULT),
+             H5Dclose);
+    if (!d.valid())
+        fail(Side::writing, file, "cannot create dataset '" + name + "'");
+    return d;
+}
+
+void write_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64_t count,
+                 const void* data, Access access, const std::string& file,
+                 const std::string& name) {
+    auto [filespace, memspace] = select_range(dataset, offset, count);
+    Handle dxpl = transfer_list(access);
+    if (H5Dwrite(dataset, memtype, memspace, filespace, dxpl, data) < 0)
+        fail(Side::writing, file, "cannot write dataset '" + name + "' (disk full?)");
+}
+
+} // namespace longrun::h5

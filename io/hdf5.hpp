@@ -1,0 +1,150 @@
+// Thin RAII wrappers over the HDF5 C API. A failed call becomes a typed exception
+// that names the file and the object; HDF5's own error stack printing is switched
+// off so that users see one line, not a page of library internals.
+#pragma once
+
+#include "error.hpp"
+
+#include <hdf5.h>
+#include <mpi.h>
+
+#include <cstdint>
+#include <optional>
+#include <string>
+#include <type_traits>
+#include <vector>
+
+namespace longrun::h5 {
+
+// Silences HDF5's automatic error printing for the whole process; idempotent.
+void silence_library_errors();
+
+class Handle {
+  public:
+    Handle() = default;
+    Handle(hid_t id, herr_t (*closer)(hid_t)) : id_(id), closer_(closer) {}
+    Handle(const Handle&) = delete;
+    Handle& operator=(const Handle&) = delete;
+    Handle(Handle&& o) noexcept : id_(o.id_), closer_(o.closer_) { o.id_ = H5I_INVALID_HID; }
+    Handle& operator=(Handle&& o) noexcept {
+        if (this != &o) {
+            reset();
+            id_ = o.id_;
+            closer_ = o.closer_;
+            o.id_ = H5I_INVALID_HID;
+        }
+        return *this;
+    }
+    ~Handle() { reset(); }
+    hid_t get() const noexcept { return id_; }
+    operator hid_t() const noexcept { return id_; }
+    bool valid() const noexcept { return id_ >= 0; }
+    // Closes now and reports failure (a late write error on close is still a write error).
+    herr_t close() noexcept {
+        herr_t status = 0;
+        if (id_ >= 0 && closer_)
+            status = closer_(id_);
+        id_ = H5I_INVALID_HID;
+        return status;
+    }
+
+  private:
+    void reset() noexcept { (void)close(); }
+    hid_t id_ = H5I_INVALID_HID;
+    herr_t (*closer_)(hid_t) = nullptr;
+};
+
+// Errors raised while reading are the user's input problem (exit 2); while
+// writing, our output problem (exit 6).
+enum class Side { reading, writing };
+
+[[noreturn]] void fail(Side side, const std::string& file, const std::string& what);
+
+enum class Access { serial, collective };
+
+// Opens for reading. With `comm` the file is opened collectively through MPI-IO.
+Handle open_for_reading(const std::string& path, std::optional<MPI_Comm> comm);
+// Creates (truncating) for writing. With `comm`, collectively through MPI-IO.
+Handle create_for_writing(const std::string& path, std::optional<MPI_Comm> comm);
+
+bool exists(hid_t loc, const std::string& path);
+Handle open_group(hid_t loc, const std::string& path, const std::string& file);
+Handle open_dataset(hid_t loc, const std::string& path, const std::string& file);
+Handle create_group(hid_t loc, const std::string& path, const std::string& file);
+
+// Shape of a dataset; throws unless it is one-dimensional.
+std::uint64_t length_1d(hid_t dataset, const std::string& file, const std::string& name);
+
+enum class Numeric { unsigned_integer, signed_integer, floating, other };
+Numeric numeric_class(hid_t dataset);
+
+// Attributes.
+bool has_attribute(hid_t loc, const std::string& name);
+std::string read_string_attribute(hid_t loc, const std::string& name, const std::string& file,
+                                  const std::string& object);
+std::uint64_t read_u64_attribute(hid_t loc, const std::string& name, const std::string& file,
+                                 const std::string& object);
+double read_f64_attribute(hid_t loc, const std::string& name, const std::string& file,
+                          const std::string& object);
+std::vector<std::string> read_string_list_attribute(hid_t loc, const std::string& name,
+                                                    const std::string& file,
+                                                    const std::string& object);
+
+void write_attribute(hid_t loc, const std::string& name, const std::string& value,
+                     const std::string& file);
+void write_attribute(hid_t loc, const std::string& name, std::uint64_t value,
+                     const std::string& file);
+void write_attribute(hid_t loc, const std::string& name, std::int64_t value,
+                     const std::string& file);
+void write_attribute(hid_t loc, const std::string& name, double value, const std::string& file);
+void write_attribute(hid_t loc, const std::string& name, const std::vector<std::string>& values,
+                     const std::string& file);
+
+template <class T>
+hid_t native_type() {
+    if constexpr (std::is_same_v<T, double>)
+        return H5T_NATIVE_DOUBLE;
+    else if constexpr (std::is_same_v<T, std::uint64_t>)
+        return H5T_NATIVE_UINT64;
+    else if constexpr (std::is_same_v<T, std::int64_t>)
+        return H5T_NATIVE_INT64;
+    else if constexpr (std::is_same_v<T, std::uint16_t>)
+        return H5T_NATIVE_UINT16;
+    else
+        static_assert(sizeof(T) == 0, "no HDF5 type for this element type");
+}
+
+// Reads elements [offset, offset + count) of a 1-d dataset. With Access::collective
+// every rank of the file's communicator must call, also with count == 0.
+void read_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64_t count,
+                void* out, Access access, const std::string& file, const std::string& name);
+
+template <class T>
+std::vector<T> read_range(hid_t dataset, std::uint64_t offset, std::uint64_t count,
+                          Access access, const std::string& file, const std::string& name) {
+    std::vector<T> out(count);
+    read_range(dataset, native_type<T>(), offset, count, out.data(), access, file, name);
+    return out;
+}
+
+struct Layout {
+    std::uint64_t chunk = 0; // 0: contiguous
+    int deflate = 0;         // 0: no compression; 1-9 with chunk > 0
+};
+
+Handle create_dataset(hid_t loc, const std::string& name, hid_t filetype, std::uint64_t length,
+                      const std::string& file, Layout layout = {});
+
+// Writes elements [offset, offset + count); collective when access says so.
+void write_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64_t count,
+                 const void* data, Access access, const std::string& file,
+                 const std::string& name);
+
+template <class T>
+void write_whole(hid_t loc, const std::string& name, const std::vector<T>& data,
+                 const std::string& file, Layout layout = {}) {
+    Handle d = create_dataset(loc, name, native_type<T>(), data.size(), file, layout);
+    write_range(d, native_type<T>(), 0, data.size(), data.data(), Access::serial, file, name);
+}
+
+} // namespace longrun::h5

@@ -1,0 +1,74 @@
+// Result file (HDF5, schema "longrun.result" version 1). Written collectively:
+// every rank writes its own slice of the distribution; the small parts (which
+// every rank holds identically) are written once. The file appears under its
+// final name only when complete (AtomicOutput).
+#pragma once
+
+#include "../partition/row_range.hpp"
+
+#include <mpi.h>
+
+#include <cstdint>
+#include <string>
+#include <vector>
+
+namespace longrun::io {
+
+inline constexpr const char* result_schema = "longrun.result";
+inline constexpr std::uint64_t result_schema_version = 1;
+
+struct ResultOrigin {
+    std::string chain_path;
+    std::uint64_t chain_bytes = 0;
+    std::int64_t chain_mtime = 0; // seconds since the epoch
+    std::string tool_version;
+    std::string kind;
+};
+
+struct CertificateRecord {
+    std::string method; // the method whose answer was kept
+    std::vector<std::string> trace;
+    std::uint64_t iterations = 0;
+    double residual = 0;
+    double tolerance = 0;
+    double norm_error = 0; // |sum(pi) - 1| before normalisation
+    double min_entry = 0;
+    double clipped_mass = 0;
+    double wall_seconds = 0;
+    std::uint64_t peak_memory_bytes = 0; // largest over ranks
+    int ranks = 1;
+    bool converged = false;
+    std::string residual_definition;
+};
+
+struct HistoryRecord {
+    std::string name; // unique per attempt, e.g. "1-linear"
+    std::vector<double> residuals;
+};
+
+struct DistributionSummary {
+    std::string name;
+    bool integral = true;
+    std::vector<double> values; // distinct values, increasing
+    std::vector<double> pmf;    // P(X = values[i])
+    std::vector<double> tail;   // P(X >= values[i])
+    double mean = 0, std = 0, q50 = 0, q90 = 0, q99 = 0, q999 = 0;
+};
+
+struct ResultContent {
+    ResultOrigin origin;
+    CertificateRecord certificate;
+    std::vector<HistoryRecord> history;
+    std::vector<DistributionSummary> variables;
+};
+
+// Collective. `content` must be identical on every rank; `local` holds the
+// distribution entries of `rows`. Throws OutputError (and leaves nothing under
+// `path`) on any failure.
+void write_result_file(const std::string& path, MPI_Comm comm, const ResultContent& content,
+                       RowRange rows, std::uint64_t states, const std::vector<double>& local);
+
+// Serial reader of the distribution (tests, later warm starts).
+std::vector<double> read_result_distribution(const std::string& path);
+
+} // namespace longrun::io

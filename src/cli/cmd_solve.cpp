@@ -1,0 +1,85 @@
+// `longrun solve`: the main job.
+#include "commands.hpp"
+#include "paths.hpp"
+#include "report.hpp"
+
+#include "io/mpi_agree.hpp"
+
+#include <cstdio>
+#include <memory>
+
+namespace longrun::cli {
+
+namespace {
+
+struct SolveOptions {
+    SolveRequest request;
+    std::string output;
+    std::string preconditioner = "amg";
+    bool json = false;
+    bool quiet = false;
+};
+
+int solve_command(MPI_Comm comm, SolveOptions& o) {
+    if (!o.output.empty()) {
+        require_distinct(o.request.chain_path, o.output);
+        require_writable_folder(o.output);
+        o.request.output = o.output;
+    }
+    o.request.preconditioner = o.preconditioner == "ilu" ? solve::LinearPreconditioner::ilu
+                               : o.preconditioner == "lu" ? solve::LinearPreconditioner::lu
+                                                          : solve::LinearPreconditioner::amg;
+    o.request.progress = !o.quiet;
+    const SolveReport report = run_solve(comm, o.request);
+    if (comm_rank(comm) == 0) {
+        if (o.json)
+            std::printf("%s\n", to_json(report).dump(2).c_str());
+        else
+            std::printf("%s", to_text(report).c_str());
+        std::fflush(stdout);
+    }
+    return 0;
+}
+
+} // namespace
+
+Action add_solve(CLI::App& app) {
+    auto o = std::make_shared<SolveOptions>();
+    auto* sub = app.add_subcommand(
+        "solve",
+        "Compute the stationary distribution pi of a chain file and certify it.\n"
+        "The certificate is the residual ||pi P - pi||_1 (dtmc) or ||pi Q||_1 / max_i |q_ii|\n"
+        "(ctmc); a result is written only when it is within --tol.\n"
+        "  longrun solve chain.h5 -o result.h5\n"
+        "  mpirun -n 4 longrun solve chain.h5 -o result.h5 --method linear --tol 1e-12\n"
+        "Methods: auto (linear, then eigen if needed), linear (GMRES + algebraic multigrid on\n"
+        "the system with one state pinned; PETSc prefix -linear_), eigen (Krylov-Schur on P^T,\n"
+        "ctmc uniformised; SLEPc prefix -eigen_).");
+    sub->add_option("chain", o->request.chain_path, "chain file (HDF5, longrun.chain v1)")
+        ->required()
+        ->check(CLI::ExistingFile);
+    sub->add_option("-o,--output", o->output,
+                    "result file to write (HDF5); written under a temporary name and renamed "
+                    "when complete");
+    sub->add_option("--method", o->request.method, "auto, linear or eigen")
+        ->default_val("auto")
+        ->check(CLI::IsMember({"auto", "linear", "eigen"}));
+    sub->add_option("--tol", o->request.tolerance, "certificate tolerance on the residual")
+        ->default_val(1e-10)
+        ->check(CLI::PositiveNumber);
+    sub->add_option("--preconditioner", o->preconditioner,
+                    "for linear: amg (hypre BoomerAMG), ilu (block-Jacobi/ILU(0)), lu (MUMPS)")
+        ->default_val("amg")
+        ->check(CLI::IsMember({"amg", "ilu", "lu"}));
+    sub->add_flag("--renormalize", o->request.validation.renormalize,
+                  "rescale dtmc rows that do not sum to 1 instead of refusing the file");
+    sub->add_option("--row-sum-tol", o->request.validation.row_sum_tolerance,
+                    "allowed |row sum - 1| of a dtmc")
+        ->default_val(1e-8)
+        ->check(CLI::PositiveNumber);
+    sub->add_flag("--json", o->json, "print the report as one JSON object on stdout");
+    sub->add_flag("-q,--quiet", o->quiet, "no progress lines on stderr");
+    return [o](MPI_Comm comm) { return solve_command(comm, *o); };
+}
+
+} // namespace longrun::cli

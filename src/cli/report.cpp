@@ -1,0 +1,108 @@
+#include "report.hpp"
+
+#include <fmt/format.h>
+
+#include <cmath>
+
+namespace longrun::cli {
+
+namespace {
+
+std::string number(double v, bool integral) {
+    if (integral && std::abs(v) < 1e15)
+        return fmt::format("{}", static_cast<long long>(std::llround(v)));
+    return fmt::format("{:.6g}", v);
+}
+
+std::string bytes(std::uint64_t b) {
+    const double mib = static_cast<double>(b) / (1024.0 * 1024.0);
+    return mib >= 1024 ? fmt::format("{:.2f} GiB", mib / 1024) : fmt::format("{:.0f} MiB", mib);
+}
+
+} // namespace
+
+nlohmann::json to_json(const SolveReport& r) {
+    nlohmann::json j;
+    j["chain"] = {{"path", r.chain_path},
+                  {"kind", io::to_string(r.kind)},
+                  {"states", r.states},
+                  {"transitions", r.transitions}};
+    j["ranks"] = r.ranks;
+    j["validation"] = {{"renormalized_rows", r.validation.renormalized_rows},
+                       {"largest_correction", r.validation.largest_correction},
+                       {"ctmc_self_loops_ignored", r.validation.ctmc_self_loops},
+                       {"explicit_zero_weights", r.validation.explicit_zeros}};
+    nlohmann::json attempts = nlohmann::json::array();
+    for (const auto& a : r.attempts)
+        attempts.push_back({{"method", a.method},
+                            {"iterations", a.iterations},
+                            {"residual", a.residual},
+                            {"certified", a.met},
+                            {"outcome", a.outcome},
+                            {"notes", a.notes}});
+    j["attempts"] = attempts;
+    j["certificate"] = {{"method", r.method},
+                        {"iterations", r.iterations},
+                        {"residual", r.certificate.residual},
+                        {"residual_definition", r.residual_definition},
+                        {"tolerance", r.tolerance},
+                        {"certified", r.certificate.meets(r.tolerance)},
+                        {"min_entry", r.certificate.min_entry},
+                        {"clipped_mass", r.certificate.clipped_mass},
+                        {"norm_error", r.certificate.norm_error}};
+    j["wall_seconds"] = r.wall_seconds;
+    j["peak_memory_bytes_per_rank"] = r.peak_memory_bytes;
+    nlohmann::json vars = nlohmann::json::array();
+    for (const auto& m : r.variables) {
+        nlohmann::json tail = nlohmann::json::array();
+        for (const auto& [v, p] : summary::informative_tail(m))
+            tail.push_back({{"at_least", v}, {"probability", p}});
+        vars.push_back({{"name", m.name},
+                        {"mean", m.mean},
+                        {"std", m.std},
+                        {"quantiles", {{"50", m.q50}, {"90", m.q90}, {"99", m.q99}, {"99.9", m.q999}}},
+                        {"tail", tail}});
+    }
+    j["variables"] = vars;
+    j["output"] = r.output ? nlohmann::json(*r.output) : nlohmann::json(nullptr);
+    return j;
+}
+
+std::string to_text(const SolveReport& r) {
+    std::string t;
+    t += fmt::format("chain        {}: {}, {} states, {} transitions\n", r.chain_path,
+                     io::to_string(r.kind), r.states, r.transitions);
+    t += fmt::format("ranks        {}\n", r.ranks);
+    std::string tried;
+    for (const auto& a : r.attempts)
+        tried += (tried.empty() ? "" : ", ") + a.method;
+    t += fmt::format("method       {} (tried: {})\n", r.method, tried);
+    t += fmt::format("iterations   {}\n", r.iterations);
+    t += fmt::format("certificate  {} = {:.2e} <= {:.1e}: certified\n", r.residual_definition,
+                     r.certificate.residual, r.tolerance);
+    if (r.certificate.clipped_mass > 0)
+        t += fmt::format("             {:.2e} of negative rounding mass clipped (min entry {:.2e})\n",
+                         r.certificate.clipped_mass, r.certificate.min_entry);
+    if (r.validation.renormalized_rows > 0)
+        t += fmt::format("input        {} row(s) renormalized, largest correction {:.3g}\n",
+                         r.validation.renormalized_rows, r.validation.largest_correction);
+    t += fmt::format("time         {:.2f} s wall, peak memory {} (largest rank)\n", r.wall_seconds,
+                     bytes(r.peak_memory_bytes));
+    if (r.output)
+        t += fmt::format("result       {}\n", *r.output);
+    if (!r.variables.empty()) {
+        t += fmt::format("\n{:<14} {:>12} {:>12} {:>9} {:>9} {:>9} {:>9}   tail mass\n",
+                         "variable", "mean", "std", "50%", "90%", "99%", "99.9%");
+        for (const auto& m : r.variables) {
+            std::string tail;
+            for (const auto& [v, p] : summary::informative_tail(m))
+                tail += fmt::format("  P(>={})={:.2e}", number(v, m.integral), p);
+            t += fmt::format("{:<14} {:>12.6g} {:>12.6g} {:>9} {:>9} {:>9} {:>9} {}\n", m.name,
+                             m.mean, m.std, number(m.q50, m.integral), number(m.q90, m.integral),
+                             number(m.q99, m.integral), number(m.q999, m.integral), tail);
+        }
+    }
+    return t;
+}
+
+} // namespace longrun::cli

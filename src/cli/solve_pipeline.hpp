@@ -1,0 +1,58 @@
+// The whole `solve` job without the command line: load, assemble, solve,
+// certify, summarise, write. The CLI formats what this returns; tests call it
+// directly (with forced partitions, for instance).
+#pragma once
+
+#include "io/chain_file.hpp"
+#include "io/result_file.hpp"
+#include "solve/method.hpp"
+#include "solve/strategy.hpp"
+#include "summary/marginals.hpp"
+
+#include <mpi.h>
+
+#include <optional>
+#include <string>
+#include <vector>
+
+namespace longrun::cli {
+
+struct SolveRequest {
+    std::string chain_path;
+    std::optional<std::string> output;
+    std::string method = "auto";
+    double tolerance = 1e-10;
+    io::ValidationOptions validation;
+    solve::LinearPreconditioner preconditioner = solve::LinearPreconditioner::amg;
+    bool progress = true;
+    std::optional<RowRange> forced_rows; // tests: override the partition
+};
+
+struct SolveReport {
+    std::string chain_path;
+    io::ChainKind kind = io::ChainKind::ctmc;
+    std::uint64_t states = 0, transitions = 0;
+    int ranks = 1;
+    io::ValidationReport validation;
+    std::vector<solve::AttemptRecord> attempts;
+    std::string method;
+    long iterations = 0;
+    solve::Certificate certificate;
+    double tolerance = 0;
+    std::string residual_definition;
+    double wall_seconds = 0;
+    std::uint64_t peak_memory_bytes = 0;
+    std::vector<summary::Marginal> variables;
+    std::optional<std::string> output;
+    RowRange rows;                  // this rank's rows
+    std::vector<double> local_pi;   // this rank's entries of the distribution
+};
+
+// Collective. Throws NumericalError (exit 4) when no method met the certificate;
+// nothing is written then.
+SolveReport run_solve(MPI_Comm comm, const SolveRequest& request);
+
+// Largest resident set size over the ranks so far, in bytes (collective).
+std::uint64_t peak_memory_bytes(MPI_Comm comm);
+
+} // namespace longrun::cli

@@ -1,0 +1,33 @@
+// The certificate: the only judge of success (never a solver's own flag).
+//   dtmc: ||pi P - pi||_1        ctmc: ||pi Q||_1 / max_i |q_ii|  (uniformised)
+// pi is first scaled to sum 1; entries below -1e-14 make it invalid, smaller
+// negatives are clipped to 0 and their mass reported.
+#pragma once
+
+#include "assemble.hpp"
+
+#include <string>
+
+namespace longrun::solve {
+
+inline constexpr double negative_entry_limit = -1e-14;
+
+struct Certificate {
+    double residual = 0;
+    double min_entry = 0;    // before clipping
+    double clipped_mass = 0; // total |negative| mass set to 0
+    double norm_error = 0;   // |sum(pi) - 1| after normalisation, a rounding check
+    bool valid = false;      // finite, normalisable, no significant negative entry
+    std::string problem;     // why not valid
+    bool meets(double tolerance) const noexcept { return valid && residual <= tolerance; }
+};
+
+std::string residual_definition(TimeModel time);
+
+// Collective. Normalises x in place (sum 1, tiny negatives clipped) and certifies it.
+Certificate certify(const TransposedChain& a, Vec x);
+
+// Collective. Computes only the residual of an already normalised x.
+double residual_of(const TransposedChain& a, Vec x);
+
+} // namespace longrun::solve

@@ -1,0 +1,17 @@
+#pragma once
+
+#include "petsc_error.hpp"
+
+#include <petscksp.h>
+#include <petscmat.h>
+#include <petscvec.h>
+#include <slepceps.h>
+
+namespace longrun::solve {
+
+using MatHandle = PetscHandle<Mat, MatDestroy>;
+using VecHandle = PetscHandle<Vec, VecDestroy>;
+using KspHandle = PetscHandle<KSP, KSPDestroy>;
+using EpsHandle = PetscHandle<EPS, EPSDestroy>;
+
+} // namespace longrun::solve

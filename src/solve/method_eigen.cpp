@@ -1,0 +1,104 @@
+// `eigen`: SLEPc Krylov-Schur for the eigenvector of P^T at eigenvalue 1 (a ctmc
+// through uniformisation, P = I + Q / lambda). "Largest real part" is asked for
+// rather than "largest magnitude": a periodic chain also has eigenvalues such as
+// -1 on the unit circle. Options prefix: -eigen_.
+#include "method.hpp"
+
+#include <fmt/format.h>
+
+#include <cmath>
+
+namespace longrun::solve {
+
+namespace {
+
+struct MonitorContext {
+    Progress* progress;
+    std::vector<double>* history;
+    long base_iteration;
+};
+
+PetscErrorCode monitor(EPS, PetscInt its, PetscInt, PetscScalar*, PetscScalar*, PetscReal* errest,
+                       PetscInt nest, void* raw) {
+    auto* ctx = static_cast<MonitorContext*>(raw);
+    if (nest > 0) {
+        ctx->history->push_back(errest[0]);
+        if (ctx->progress)
+            ctx->progress->update(ctx->base_iteration + its, errest[0]);
+    }
+    return 0;
+}
+
+} // namespace
+
+Attempt run_eigen(const TransposedChain& a, Vec warm_start, const MethodSettings& s) {
+    MPI_Comm comm = PetscObjectComm((PetscObject)a.matrix.get());
+    Attempt attempt;
+    attempt.method = "eigen";
+    MatHandle uniformised;
+    Mat p = a.matrix;
+    if (a.time == TimeModel::continuous) {
+        check(MatDuplicate(a.matrix, MAT_COPY_VALUES, uniformised.out()), "MatDuplicate");
+        check(MatScale(uniformised, 1.0 / a.uniformisation), "MatScale");
+        check(MatShift(uniformised, 1.0), "MatShift");
+        p = uniformised;
+    }
+    if (s.progress)
+        s.progress->begin("eigen", s.tolerance);
+
+    EpsHandle eps;
+    check(EPSCreate(comm, eps.out()), "EPSCreate");
+    check(EPSSetOptionsPrefix(eps, "eigen_"), "EPSSetOptionsPrefix");
+    check(EPSSetOperators(eps, p, nullptr), "EPSSetOperators");
+    check(EPSSetProblemType(eps, EPS_NHEP), "EPSSetProblemType");
+    check(EPSSetType(eps, EPSKRYLOVSCHUR), "EPSSetType");
+    check(EPSSetWhichEigenpairs(eps, EPS_LARGEST_REAL), "EPSSetWhichEigenpairs");
+    check(EPSSetDimensions(eps, 1, PETSC_DEFAULT, PETSC_DEFAULT), "EPSSetDimensions");
+    // The eigenvalue sought is 1, so relative and absolute tests agree.
+    double tol = s.tolerance;
+    check(EPSSetTolerances(eps, tol, 100000), "EPSSetTolerances");
+    MonitorContext ctx{s.progress, &attempt.history, 0};
+    check(EPSMonitorSet(eps, monitor, &ctx, nullptr), "EPSMonitorSet");
+    check(EPSSetFromOptions(eps), "EPSSetFromOptions");
+
+    VecHandle x = create_state_vector(a);
+    if (warm_start) {
+        Vec initial[1] = {warm_start};
+        check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");
+    }
+    for (int round = 0; round < s.max_rounds; ++round) {
+        ctx.base_iteration = attempt.iterations;
+        check(EPSSolve(eps), "EPSSolve");
+        PetscInt its = 0, nconv = 0;
+        check(EPSGetIterationNumber(eps, &its), "EPSGetIterationNumber");
+        check(EPSGetConverged(eps, &nconv), "EPSGetConverged");
+        attempt.iterations += its;
+        if (nconv < 1) {
+            attempt.notes.push_back(
+                fmt::format("round {}: {} iterations, no eigenpair converged", round + 1, its));
+            break;
+        }
+        PetscScalar kr = 0, ki = 0;
+        check(EPSGetEigenpair(eps, 0, &kr, &ki, x, nullptr), "EPSGetEigenpair");
+        const Certificate c = certify(a, x);
+        attempt.notes.push_back(fmt::format(
+            "round {}: {} iterations, eigenvalue {:.15g}{:+.2e}i, certified residual {:.3e}",
+            round + 1, its, kr, ki, c.residual));
+        if (is_better(c, attempt)) {
+            if (!attempt.x)
+                attempt.x = create_state_vector(a);
+            check(VecCopy(x, attempt.x), "VecCopy");
+            attempt.certificate = c;
+        }
+        if (c.meets(s.tolerance))
+            break;
+        const double missing = c.valid ? s.tolerance / c.residual : 1e-2;
+        tol = std::max(tol * std::min(0.5, 0.1 * missing), 1e-15);
+        check(EPSSetTolerances(eps, tol, 100000), "EPSSetTolerances");
+        Vec initial[1] = {attempt.x.get()};
+        check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");
+    }
+    return attempt;
+}
+
+} // namespace longrun::solve

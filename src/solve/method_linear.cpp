@@ -1,0 +1,207 @@
+// `linear`: Q^T x = 0 (or (P^T - I) x = 0) with one component pinned, x_p = 1,
+// solved by a Krylov method (GMRES by default) with algebraic multigrid (hypre
+// BoomerAMG) or block-Jacobi/ILU or sparse LU. Options prefix: -linear_.
+//
+// Pinning a state of tiny probability scales the system badly and makes the
+// solver's own residual meaningless, so the pin is a state of large estimated
+// probability, and after the solve it is checked: if the pinned state turned out
+// small, the system is pinned again at the largest entry and solved once more.
+#include "method.hpp"
+
+#include <fmt/format.h>
+
+#include <cmath>
+
+namespace longrun::solve {
+
+namespace {
+
+struct MonitorContext {
+    Progress* progress;
+    std::vector<double>* history;
+    long base_iteration;
+};
+
+PetscErrorCode monitor(KSP, PetscInt it, PetscReal rnorm, void* raw) {
+    auto* ctx = static_cast<MonitorContext*>(raw);
+    ctx->history->push_back(rnorm);
+    if (ctx->progress)
+        ctx->progress->update(ctx->base_iteration + it, rnorm);
+    return 0;
+}
+
+// Index and value of the largest entry (collective).
+std::pair<PetscInt, double> argmax(Vec x) {
+    PetscInt at = 0;
+    PetscReal value = 0;
+    check(VecMax(x, &at, &value), "VecMax");
+    return {at, value};
+}
+
+// A cheap guess at where the mass is: a few steps of the lazy uniformised chain
+// from the uniform vector. Needs only products with A.
+VecHandle rough_estimate(const TransposedChain& a, int steps) {
+    VecHandle x = create_state_vector(a), y = create_state_vector(a);
+    check(VecSet(x, 1.0 / a.states), "VecSet");
+    const double scale = 0.5 / a.uniformisation; // lazy: (I + P)/2, P = I + Q/lambda
+    for (int k = 0; k < steps; ++k) {
+        check(MatMult(a.matrix, x, y), "MatMult");
+        if (a.time == TimeModel::continuous) // x <- x + Q^T x / (2 lambda)
+            check(VecAXPY(x, scale, y), "VecAXPY");
+        else // x <- (x + P^T x) / 2
+            check(VecAXPBY(x, 0.5, 0.5, y), "VecAXPBY");
+    }
+    return x;
+}
+
+double value_at(Vec x, PetscInt index) {
+    PetscInt lo = 0, hi = 0;
+    check(VecGetOwnershipRange(x, &lo, &hi), "VecGetOwnershipRange");
+    double mine = 0;
+    if (index >= lo && index < hi) {
+        const PetscScalar* v = nullptr;
+        check(VecGetArrayRead(x, &v), "VecGetArrayRead");
+        mine = v[index - lo];
+        check(VecRestoreArrayRead(x, &v), "VecRestoreArrayRead");
+    }
+    double all = 0;
+    MPI_Allreduce(&mine, &all, 1, MPI_DOUBLE, MPI_SUM, PetscObjectComm((PetscObject)x));
+    return all;
+}
+
+void configure_preconditioner(PC pc, LinearPreconditioner kind) {
+    switch (kind) {
+    case LinearPreconditioner::amg:
+#if defined(PETSC_HAVE_HYPRE)
+        check(PCSetType(pc, PCHYPRE), "PCSetType(hypre)");
+        check(PCHYPRESetType(pc, "boomeramg"), "PCHYPRESetType");
+#else
+        check(PCSetType(pc, PCGAMG), "PCSetType(gamg)");
+#endif
+        break;
+    case LinearPreconditioner::ilu:
+        check(PCSetType(pc, PCBJACOBI), "PCSetType(bjacobi)"); // ILU(0) on each block
+        break;
+    case LinearPreconditioner::lu:
+        check(PCSetType(pc, PCLU), "PCSetType(lu)");
+#if defined(PETSC_HAVE_MUMPS)
+        check(PCFactorSetMatSolverType(pc, MATSOLVERMUMPS), "PCFactorSetMatSolverType");
+#endif
+        break;
+    }
+}
+
+Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin,
+                     const MethodSettings& s, Attempt attempt) {
+    MPI_Comm comm = PetscObjectComm((PetscObject)a.matrix.get());
+    MatHandle m;
+    check(MatDuplicate(a.matrix, MAT_COPY_VALUES, m.out()), "MatDuplicate");
+    if (a.time == TimeModel::discrete)
+        check(MatShift(m, -1.0), "MatShift");
+
+    VecHandle x = create_state_vector(a), b = create_state_vector(a);
+    check(VecCopy(start, x), "VecCopy");
+    const double at_pin = value_at(x, pin);
+    check(VecScale(x, 1.0 / at_pin), "VecScale"); // x_pin = 1 exactly
+    check(VecSet(b, 0.0), "VecSet");
+    // The pinned row keeps the row's own scale, so that the system stays balanced.
+    VecHandle diagonal = create_state_vector(a);
+    check(MatGetDiagonal(m, diagonal), "MatGetDiagonal");
+    double d = std::abs(value_at(diagonal, pin));
+    if (!(d > 0))
+        d = 1;
+    PetscInt lo = 0, hi = 0;
+    check(MatGetOwnershipRange(m, &lo, &hi), "MatGetOwnershipRange");
+    const PetscInt mine = (pin >= lo && pin < hi) ? 1 : 0;
+    check(MatZeroRows(m, mine, &pin, d, x, b), "MatZeroRows");
+
+    KspHandle ksp;
+    check(KSPCreate(comm, ksp.out()), "KSPCreate");
+    check(KSPSetOptionsPrefix(ksp, "linear_"), "KSPSetOptionsPrefix");
+    check(KSPSetOperators(ksp, m, m), "KSPSetOperators");
+    check(KSPSetType(ksp, KSPGMRES), "KSPSetType");
+    // Right preconditioning: the monitored norm is the true residual of the system.
+    check(KSPSetPCSide(ksp, PC_RIGHT), "KSPSetPCSide");
+    check(KSPSetNormType(ksp, KSP_NORM_UNPRECONDITIONED), "KSPSetNormType");
+    PC pc = nullptr;
+    check(KSPGetPC(ksp, &pc), "KSPGetPC");
+    configure_preconditioner(pc, s.preconditioner);
+    double rtol = s.tolerance;
+    check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, 10000), "KSPSetTolerances");
+    check(KSPSetInitialGuessNonzero(ksp, PETSC_TRUE), "KSPSetInitialGuessNonzero");
+    MonitorContext ctx{s.progress, &attempt.history, attempt.iterations};
+    check(KSPMonitorSet(ksp, monitor, &ctx, nullptr), "KSPMonitorSet");
+    check(KSPSetFromOptions(ksp), "KSPSetFromOptions");
+
+    VecHandle candidate = create_state_vector(a);
+    for (int round = 0; round < s.max_rounds; ++round) {
+        ctx.base_iteration = attempt.iterations;
+        check(KSPSolve(ksp, b, x), "KSPSolve");
+        PetscInt its = 0;
+        check(KSPGetIterationNumber(ksp, &its), "KSPGetIterationNumber");
+        KSPConvergedReason reason;
+        check(KSPGetConvergedReason(ksp, &reason), "KSPGetConvergedReason");
+        attempt.iterations += its;
+        check(VecCopy(x, candidate), "VecCopy");
+        const Certificate c = certify(a, candidate);
+        attempt.notes.push_back(fmt::format("round {}: {} iterations, solver says {}, "
+                                            "certified residual {:.3e}",
+                                            round + 1, its, KSPConvergedReasons[reason],
+                                            c.residual));
+        if (is_better(c, attempt)) {
+            if (!attempt.x)
+                attempt.x = create_state_vector(a);
+            check(VecCopy(candidate, attempt.x), "VecCopy");
+            attempt.certificate = c;
+        }
+        if (c.meets(s.tolerance))
+            break;
+        if (reason < 0 && its == 0)
+            break; // the solver cannot move: more rounds will not help
+        // The solver's residual and the certificate differ by the pin's scale:
+        // tighten by the factor still missing, with a margin.
+        const double missing = c.valid ? s.tolerance / c.residual : 1e-2;
+        rtol = std::max(rtol * std::min(0.5, 0.1 * missing), 1e-15);
+        check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, 10000), "KSPSetTolerances");
+    }
+    return attempt;
+}
+
+} // namespace
+
+Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSettings& s) {
+    Attempt attempt;
+    attempt.method = "linear";
+    VecHandle start;
+    if (warm_start) {
+        start = create_state_vector(a);
+        check(VecCopy(warm_start, start), "VecCopy");
+    } else {
+        start = rough_estimate(a, 20);
+    }
+    auto [pin, largest] = argmax(start);
+    if (s.progress) {
+        s.progress->begin("linear", s.tolerance);
+        s.progress->note(fmt::format("linear: pinning state {} (estimated probability {:.2e})",
+                                     pin, largest));
+    }
+    attempt = solve_pinned(a, start, pin, s, std::move(attempt));
+    if (attempt.x) {
+        const double at_pin = value_at(attempt.x, pin);
+        auto [best, best_value] = argmax(attempt.x);
+        if (at_pin < 1e-3 * best_value && !attempt.certificate.meets(s.tolerance)) {
+            attempt.notes.push_back(fmt::format(
+                "pinned state {} has probability {:.2e}, far below the largest ({:.2e} at "
+                "state {}): pinned again there",
+                pin, at_pin, best_value, best));
+            if (s.progress)
+                s.progress->note(attempt.notes.back());
+            VecHandle restart = create_state_vector(a);
+            check(VecCopy(attempt.x, restart), "VecCopy");
+            attempt = solve_pinned(a, restart, best, s, std::move(attempt));
+        }
+    }
+    return attempt;
+}
+
+} // namespace longrun::solve

@@ -1,0 +1,60 @@
+// PETSc/SLEPc error codes become typed exceptions at the boundary, and PETSc
+// objects live in RAII handles whose destructors never throw.
+#pragma once
+
+#include "io/error.hpp"
+
+#include <petscsys.h>
+
+#include <string>
+#include <utility>
+
+namespace longrun::solve {
+
+// A failure inside PETSc or SLEPc: out of memory, a breakdown, a bad option.
+struct LibraryError : Error {
+    explicit LibraryError(const std::string& m) : Error(ExitCode::numerical, m) {}
+};
+
+// Makes PETSc return error codes instead of printing a trace and aborting; call
+// once after PetscInitialize.
+void use_exceptions_for_petsc_errors();
+
+void check(PetscErrorCode code, const char* what);
+
+template <class T, PetscErrorCode (*Destroy)(T*)>
+class PetscHandle {
+  public:
+    PetscHandle() = default;
+    explicit PetscHandle(T object) : object_(object) {}
+    PetscHandle(const PetscHandle&) = delete;
+    PetscHandle& operator=(const PetscHandle&) = delete;
+    PetscHandle(PetscHandle&& o) noexcept : object_(std::exchange(o.object_, nullptr)) {}
+    PetscHandle& operator=(PetscHandle&& o) noexcept {
+        if (this != &o) {
+            reset();
+            object_ = std::exchange(o.object_, nullptr);
+        }
+        return *this;
+    }
+    ~PetscHandle() { reset(); }
+
+    T get() const noexcept { return object_; }
+    operator T() const noexcept { return object_; }
+    // For PETSc's "create into this pointer" calls.
+    T* out() noexcept {
+        reset();
+        return &object_;
+    }
+    explicit operator bool() const noexcept { return object_ != nullptr; }
+    void reset() noexcept {
+        if (object_)
+            (void)Destroy(&object_); // a failed destroy must not escape a destructor
+        object_ = nullptr;
+    }
+
+  private:
+    T object_ = nullptr;
+};
+
+} // namespace longrun::solve
