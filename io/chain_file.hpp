@@ -29,7 +29,7 @@ struct ChainHeader {
 };
 
 struct ValidationOptions {
-    double row_sum_tolerance = 1e-8; // dtmc: |sum_j p_ij - 1| allowed per row
+    double row_sum_tolerance = 1e-8; // dtmc: |sum_j p_ij - 1| allowed per row (and rescaled away)
     bool renormalize = false;        // dtmc: rescale rows instead of rejecting them
 };
 

@@ -19,6 +19,7 @@
 #include <optional>
 #include <stdexcept>
 #include <string_view>
+#include <sys/stat.h>
 #include <system_error>
 #include <unistd.h>
 #include <vector>
@@ -34,9 +35,12 @@ constexpr std::string_view expected_banner = "%%MatrixMarket matrix coordinate r
 constexpr std::size_t max_line_length = std::size_t{1} << 20;
 constexpr std::size_t read_chunk = std::size_t{4} << 20;
 
-// A size line may claim anything; memory is committed only in proportion to
-// entries actually read, so the first reservation is capped.
-constexpr std::uint64_t max_initial_reservation = std::uint64_t{1} << 20;
+// A size line may claim anything, so the entry arrays are reserved for no more
+// entries than the file has room for: the shortest entry line, "1 1 1\n", takes
+// 6 bytes. Where the size is unknown (a pipe) the reservation is capped instead.
+// Reserving up front saves the copies and page faults of growing 10^7 entries.
+constexpr std::uint64_t shortest_entry_line = 6;
+constexpr std::uint64_t unknown_size_reservation = std::uint64_t{1} << 20;
 
 // n entries touch at most 2n states. A size line declaring more states than
 // that (plus one) means isolated states, which in practice is a wrong size
@@ -88,7 +92,7 @@ std::string clip(std::string_view s) {
 }
 
 std::string quote(std::string_view s) {
-    return "'" + clip(s) + "'";
+    return fmt::format("'{}'", clip(s));
 }
 
 enum class IntStatus { ok, negative, not_integer, too_large };
@@ -153,6 +157,14 @@ class LineReader {
 
     std::uint64_t number() const noexcept { return number_; }
 
+    // Of a regular file; nothing for pipes and devices.
+    std::optional<std::uint64_t> bytes() const {
+        struct stat st {};
+        if (::fstat(::fileno(file_.get()), &st) != 0 || !S_ISREG(st.st_mode))
+            return std::nullopt;
+        return static_cast<std::uint64_t>(st.st_size);
+    }
+
     // The first bytes of the file, for recognising what a non-Matrix-Market file is.
     std::string_view head() {
         if (end_ == 0 && !eof_)
@@ -213,6 +225,8 @@ struct Entry {
 class Scanner {
   public:
     explicit Scanner(const std::string& path) : path_(path), in_(path) {}
+
+    std::optional<std::uint64_t> file_bytes() const { return in_.bytes(); }
 
     [[noreturn]] void fail(std::uint64_t line, const std::string& what) const {
         throw InputError(fmt::format("{}: line {}: {}", path_, line, what));
@@ -357,10 +371,11 @@ class Scanner {
             fail(at, fmt::format("{} entries declared, more than a {} x {} matrix can hold",
                                  size.entries, size.rows, size.rows));
         if (size.rows > max_states_for(size.entries))
-            fail(at, fmt::format("{} states declared but only {} entries, so most states would "
+            fail(at, fmt::format("{} states declared but only {} {}, so most states would "
                                  "have no transition at all; longrun's Matrix Market reader "
                                  "accepts at most max(2 x entries + 1, {}) states",
-                                 size.rows, size.entries, free_state_count));
+                                 size.rows, size.entries, size.entries == 1 ? "entry" : "entries",
+                                 free_state_count));
         return size;
     }
 
@@ -447,7 +462,9 @@ Chain read_matrix_market(const std::string& path, ChainKind kind) {
     std::vector<std::uint64_t> sources, targets;
     std::vector<double> weights;
     std::vector<std::uint64_t> diagonal_rows; // ctmc: to spot a diagonal given twice
-    const auto reserve = std::min(size.entries, max_initial_reservation);
+    const auto room =
+        scan.file_bytes() ? *scan.file_bytes() / shortest_entry_line + 1 : unknown_size_reservation;
+    const auto reserve = std::min(size.entries, room);
     sources.reserve(reserve);
     targets.reserve(reserve);
     weights.reserve(reserve);
@@ -566,7 +583,7 @@ void write_matrix_market(const std::string& path, const Chain& chain) {
 
     AtomicOutput out(path);
     BufferedWriter w(path, out.temporary());
-    auto it = std::back_inserter(w.buffer());
+    auto it = fmt::appender(w.buffer());
     fmt::format_to(it, "{}\n", expected_banner);
     if (ctmc)
         fmt::format_to(it, "% written by longrun: ctmc generator Q, row = source state, "
@@ -592,6 +609,11 @@ void write_matrix_market(const std::string& path, const Chain& chain) {
                 total += chain.weights[k];
                 any = true;
             }
+        // The reader refuses a non-finite value, so such a file could not be read back.
+        if (!std::isfinite(total))
+            throw OutputError(fmt::format("{}: the total rate of state {} is {}, so the "
+                                          "generator's diagonal cannot be written",
+                                          path, r + 1, fmt_double(total)));
         // -0.0 would print as "-0"; a zero total is written as a plain 0.
         const double diagonal = total == 0 ? 0.0 : -total;
         bool diagonal_written = !any;

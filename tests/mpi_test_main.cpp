@@ -31,6 +31,8 @@ int main(int argc, char** argv) {
     char** fake_argv = argv;
     if (SlepcInitialize(&fake_argc, &fake_argv, nullptr, nullptr) != 0)
         return 99;
+    // PETSc errors become exceptions, as in the longrun executable.
+    PetscPushErrorHandler(PetscReturnErrorHandler, nullptr);
     int rank = 0;
     MPI_Comm_rank(MPI_COMM_WORLD, &rank);
     auto& listeners = testing::UnitTest::GetInstance()->listeners();

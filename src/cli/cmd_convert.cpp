@@ -33,7 +33,9 @@ bool looks_like_matrix_market(const std::string& path) {
 int convert(MPI_Comm comm, const ConvertOptions& o) {
     require_distinct(o.input, o.output);
     require_writable_folder(o.output);
-    const bool from_mtx = looks_like_matrix_market(o.input);
+    // The extension counts too: a .mtx file with a damaged banner must be refused
+    // by the Matrix Market reader, which names the line, not by the HDF5 one.
+    const bool from_mtx = looks_like_matrix_market(o.input) || has_extension(o.input, ".mtx");
     const bool to_mtx = has_extension(o.output, ".mtx");
     if (from_mtx && to_mtx)
         throw UsageError("both files are Matrix Market; convert goes between Matrix Market and "
@@ -91,9 +93,8 @@ Action add_convert(CLI::App& app) {
         "                                                    diagonal)\n"
         "The input is validated; a dtmc whose rows do not sum to 1 is refused unless\n"
         "--renormalize is given.");
-    sub->add_option("input", o->input, "Matrix Market (.mtx) or chain file (.h5)")
-        ->required()
-        ->check(CLI::ExistingFile);
+    // Existence is the reader's check (exit 2), as for `solve`.
+    sub->add_option("input", o->input, "Matrix Market (.mtx) or chain file (.h5)")->required();
     sub->add_option("output", o->output, "output file: .mtx for Matrix Market, else chain file")
         ->required();
     sub->add_option("--kind", o->kind, "ctmc (rates) or dtmc (probabilities), for .mtx input")

@@ -55,9 +55,10 @@ Action add_solve(CLI::App& app) {
         "Methods: auto (linear, then eigen if needed), linear (GMRES + algebraic multigrid on\n"
         "the system with one state pinned; PETSc prefix -linear_), eigen (Krylov-Schur on P^T,\n"
         "ctmc uniformised; SLEPc prefix -eigen_).");
+    // Existence is the reader's check, not the parser's: a missing or unreadable
+    // input is bad input (exit 2), not a usage error.
     sub->add_option("chain", o->request.chain_path, "chain file (HDF5, longrun.chain v1)")
-        ->required()
-        ->check(CLI::ExistingFile);
+        ->required();
     sub->add_option("-o,--output", o->output,
                     "result file to write (HDF5); written under a temporary name and renamed "
                     "when complete");

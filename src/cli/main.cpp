@@ -8,6 +8,7 @@
 
 #include <slepcsys.h>
 
+#include <algorithm>
 #include <cstdio>
 #include <string>
 #include <vector>
@@ -86,9 +87,12 @@ int main(int argc, char** argv) {
         if (rank == 0) {
             if (e.get_exit_code() == 0)
                 app.exit(e); // --help, --version
-            else
-                std::fprintf(stderr, "longrun: usage error: %s\n  (see longrun --help)\n",
-                             e.what());
+            else {
+                // One line like every other error: batch logs are read with grep.
+                std::string what = e.what();
+                std::replace(what.begin(), what.end(), '\n', ' ');
+                report_error(-1, what + " (see longrun --help)");
+            }
         }
         code = e.get_exit_code() == 0 ? 0 : 1;
         SlepcFinalize();

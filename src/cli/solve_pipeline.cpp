@@ -138,9 +138,13 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         std::string why;
         for (const auto& at : outcome.attempts)
             why += (why.empty() ? "" : "; ") + at.method + " " + at.outcome;
-        throw NumericalError(fmt::format(
-            "{}: no method reached the certificate {} <= {:.1e} ({})", request.chain_path,
-            report.residual_definition, request.tolerance, why));
+        NumericalError failure(
+            fmt::format("{}: no method reached the certificate {} <= {:.1e} ({})",
+                        request.chain_path, report.residual_definition, request.tolerance, why));
+        // The certificate is a global reduction, so every rank throws this same error;
+        // unagreed, the front end would print it once per rank and abort the job.
+        failure.mark_agreed();
+        throw failure;
     }
     report.local_pi = local_entries(outcome.pi);
 

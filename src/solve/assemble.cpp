@@ -20,40 +20,42 @@ TransposedChain assemble_transposed(MPI_Comm comm, const LocalRows& in) {
     std::vector<PetscInt> row_ptr(n_local + 1, 0);
     std::vector<PetscInt> cols;
     std::vector<PetscScalar> vals;
-    cols.reserve(in.targets.size() + (ctmc ? n_local : 0));
+    cols.reserve(in.targets.size() + n_local);
     vals.reserve(cols.capacity());
     double max_exit = 0;
     for (PetscInt i = 0; i < n_local; ++i) {
         const std::uint64_t row = in.rows.begin + i;
         const auto first = in.offsets[i], last = in.offsets[i + 1];
+        // Every row gets a stored diagonal (an explicit zero if need be): PETSc's
+        // shifts and row pinning need it, and a missing one would cost a malloc
+        // per row in parallel.
+        double diagonal = 0;
         if (ctmc) {
-            double exit_rate = 0;
             for (auto k = first; k < last; ++k)
                 if (in.targets[k] != row) // a rate to itself changes nothing
-                    exit_rate += in.weights[k];
-            max_exit = std::max(max_exit, exit_rate);
-            bool diagonal_done = false;
-            for (auto k = first; k < last; ++k) {
-                const auto t = in.targets[k];
-                if (!diagonal_done && t >= row) {
-                    cols.push_back(static_cast<PetscInt>(row));
-                    vals.push_back(-exit_rate);
-                    diagonal_done = true;
-                }
-                if (t != row) {
-                    cols.push_back(static_cast<PetscInt>(t));
-                    vals.push_back(in.weights[k]);
-                }
-            }
-            if (!diagonal_done) {
-                cols.push_back(static_cast<PetscInt>(row));
-                vals.push_back(-exit_rate);
-            }
+                    diagonal -= in.weights[k];
+            max_exit = std::max(max_exit, -diagonal);
         } else {
-            for (auto k = first; k < last; ++k) {
-                cols.push_back(static_cast<PetscInt>(in.targets[k]));
+            for (auto k = first; k < last; ++k)
+                if (in.targets[k] == row)
+                    diagonal = in.weights[k];
+        }
+        bool diagonal_done = false;
+        for (auto k = first; k < last; ++k) {
+            const auto t = in.targets[k];
+            if (!diagonal_done && t >= row) {
+                cols.push_back(static_cast<PetscInt>(row));
+                vals.push_back(diagonal);
+                diagonal_done = true;
+            }
+            if (t != row) {
+                cols.push_back(static_cast<PetscInt>(t));
                 vals.push_back(in.weights[k]);
             }
+        }
+        if (!diagonal_done) {
+            cols.push_back(static_cast<PetscInt>(row));
+            vals.push_back(diagonal);
         }
         row_ptr[i + 1] = static_cast<PetscInt>(cols.size());
     }
@@ -80,7 +82,8 @@ TransposedChain assemble_transposed(MPI_Comm comm, const LocalRows& in) {
     forward.reset();
     double global_max = 0;
     MPI_Allreduce(&max_exit, &global_max, 1, MPI_DOUBLE, MPI_MAX, comm);
-    out.uniformisation = ctmc ? global_max : 1.0;
+    // A ctmc with no transitions at all has no scale; 1 keeps the residual defined.
+    out.uniformisation = ctmc ? (global_max > 0 ? global_max : 1.0) : 1.0;
     return out;
 }
 
