@@ -1,11 +1,12 @@
-// `linear`: Q^T x = 0 (or (P^T - I) x = 0) with one component pinned, x_p = 1,
-// solved by a Krylov method (GMRES by default) with algebraic multigrid (hypre
-// BoomerAMG) or block-Jacobi/ILU or sparse LU. Options prefix: -linear_.
+// `linear`: the stationary vector as the solution of Q^T x = 0 (or (P^T - I) x = 0)
+// by a Krylov method (GMRES by default) with algebraic multigrid (hypre
+// BoomerAMG), block-Jacobi/ILU or sparse LU. Options prefix: -linear_.
 //
-// Pinning a state of tiny probability scales the system badly and makes the
-// solver's own residual meaningless, so the pin is a state of large estimated
-// probability, and after the solve it is checked: if the pinned state turned out
-// small, the system is pinned again at the largest entry and solved once more.
+// It first solves the singular system itself from a positive start. If that does
+// not reach the certificate, it pins one component (x_p = 1) to make the system
+// non-singular. Pinning a state of tiny probability scales the system badly and
+// makes the solver's own residual meaningless, so the pin is the largest entry
+// of the best estimate so far, never a fixed state.
 #include "method.hpp"
 
 #include <fmt/format.h>
@@ -15,6 +16,8 @@
 namespace longrun::solve {
 
 namespace {
+
+constexpr PetscInt no_pin = -1;
 
 struct MonitorContext {
     Progress* progress;
@@ -91,6 +94,7 @@ void configure_preconditioner(PC pc, LinearPreconditioner kind) {
     }
 }
 
+// pin == no_pin: the singular system A x = 0 itself.
 Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin,
                      const MethodSettings& s, Attempt attempt) {
     MPI_Comm comm = PetscObjectComm((PetscObject)a.matrix.get());
@@ -101,19 +105,22 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin,
 
     VecHandle x = create_state_vector(a), b = create_state_vector(a);
     check(VecCopy(start, x), "VecCopy");
-    const double at_pin = value_at(x, pin);
-    check(VecScale(x, 1.0 / at_pin), "VecScale"); // x_pin = 1 exactly
+    if (pin >= 0) {
+        const double at_pin = value_at(x, pin);
+        check(VecScale(x, 1.0 / at_pin), "VecScale"); // x_pin = 1 exactly
+    }
     check(VecSet(b, 0.0), "VecSet");
     // The pinned row keeps the row's own scale, so that the system stays balanced.
     VecHandle diagonal = create_state_vector(a);
     check(MatGetDiagonal(m, diagonal), "MatGetDiagonal");
-    double d = std::abs(value_at(diagonal, pin));
+    double d = pin >= 0 ? std::abs(value_at(diagonal, pin)) : 1.0;
     if (!(d > 0))
         d = 1;
     PetscInt lo = 0, hi = 0;
     check(MatGetOwnershipRange(m, &lo, &hi), "MatGetOwnershipRange");
     const PetscInt mine = (pin >= lo && pin < hi) ? 1 : 0;
-    check(MatZeroRows(m, mine, &pin, d, x, b), "MatZeroRows");
+    if (pin >= 0)
+        check(MatZeroRows(m, mine, &pin, d, x, b), "MatZeroRows");
 
     KspHandle ksp;
     check(KSPCreate(comm, ksp.out()), "KSPCreate");
@@ -127,7 +134,8 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin,
     check(KSPGetPC(ksp, &pc), "KSPGetPC");
     configure_preconditioner(pc, s.preconditioner);
     double rtol = s.tolerance;
-    check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, 10000), "KSPSetTolerances");
+    const PetscInt max_it = 10000;
+    check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, max_it), "KSPSetTolerances");
     check(KSPSetInitialGuessNonzero(ksp, PETSC_TRUE), "KSPSetInitialGuessNonzero");
     MonitorContext ctx{s.progress, &attempt.history, attempt.iterations};
     check(KSPMonitorSet(ksp, monitor, &ctx, nullptr), "KSPMonitorSet");
@@ -144,8 +152,9 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin,
         attempt.iterations += its;
         check(VecCopy(x, candidate), "VecCopy");
         const Certificate c = certify(a, candidate);
-        attempt.notes.push_back(fmt::format("round {}: {} iterations, solver says {}, "
+        attempt.notes.push_back(fmt::format("{} round {}: {} iterations, solver says {}, "
                                             "certified residual {:.3e}",
+                                            pin == no_pin ? "singular system" : "pinned system",
                                             round + 1, its, KSPConvergedReasons[reason],
                                             c.residual));
         if (is_better(c, attempt)) {
@@ -162,7 +171,7 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin,
         // tighten by the factor still missing, with a margin.
         const double missing = c.valid ? s.tolerance / c.residual : 1e-2;
         rtol = std::max(rtol * std::min(0.5, 0.1 * missing), 1e-15);
-        check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, 10000), "KSPSetTolerances");
+        check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, max_it), "KSPSetTolerances");
     }
     return attempt;
 }
@@ -179,28 +188,37 @@ Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSetting
     } else {
         start = rough_estimate(a, 20);
     }
-    auto [pin, largest] = argmax(start);
-    if (s.progress) {
+    if (s.progress)
         s.progress->begin("linear", s.tolerance);
-        s.progress->note(fmt::format("linear: pinning state {} (estimated probability {:.2e})",
-                                     pin, largest));
+
+    // -linear_pin STATE: solve the pinned system at a state the user knows to be likely.
+    PetscInt chosen = -1;
+    PetscBool given = PETSC_FALSE;
+    check(PetscOptionsGetInt(nullptr, "linear_", "-pin", &chosen, &given), "PetscOptionsGetInt");
+    if (given && (chosen < 0 || chosen >= a.states))
+        throw UsageError(fmt::format("-linear_pin {} is not a state (0..{})", chosen,
+                                     a.states - 1));
+    if (!given) {
+        // First the singular system itself, from a positive start: Krylov
+        // corrections live in the range of A, so the start's component along pi
+        // survives and no pin has to be guessed. Measured on a 1,002,001-state
+        // tandem line: 22 iterations against 32-150 for pinned systems,
+        // depending on the pin (benchmarks/RESULTS.md).
+        attempt = solve_pinned(a, start, no_pin, s, std::move(attempt));
+        if (attempt.certificate.meets(s.tolerance))
+            return attempt;
+        if (attempt.x && attempt.certificate.valid)
+            check(VecCopy(attempt.x, start), "VecCopy");
     }
+    // The pinned system, at the largest entry of the best estimate so far.
+    PetscInt pin = argmax(start).first;
+    if (given)
+        pin = chosen;
+    attempt.notes.push_back(
+        fmt::format("pinning state {} (estimated probability {:.2e})", pin, value_at(start, pin)));
+    if (s.progress)
+        s.progress->note("linear: " + attempt.notes.back());
     attempt = solve_pinned(a, start, pin, s, std::move(attempt));
-    if (attempt.x) {
-        const double at_pin = value_at(attempt.x, pin);
-        auto [best, best_value] = argmax(attempt.x);
-        if (at_pin < 1e-3 * best_value && !attempt.certificate.meets(s.tolerance)) {
-            attempt.notes.push_back(fmt::format(
-                "pinned state {} has probability {:.2e}, far below the largest ({:.2e} at "
-                "state {}): pinned again there",
-                pin, at_pin, best_value, best));
-            if (s.progress)
-                s.progress->note(attempt.notes.back());
-            VecHandle restart = create_state_vector(a);
-            check(VecCopy(attempt.x, restart), "VecCopy");
-            attempt = solve_pinned(a, restart, best, s, std::move(attempt));
-        }
-    }
     return attempt;
 }
 
