@@ -3,6 +3,8 @@
 #include "error.hpp"
 #include "mpi_agree.hpp"
 
+#include <fmt/format.h>
+
 #include <cerrno>
 #include <cstdio>
 #include <cstring>
@@ -17,8 +19,10 @@ namespace {
 std::string temporary_name_for(const std::string& final_path) {
     const std::filesystem::path p(final_path);
     std::random_device rd;
-    const auto tag = std::to_string(::getpid()) + "-" + std::to_string(rd() % 1000000);
-    return (p.parent_path() / ("." + p.filename().string() + ".tmp-" + tag)).string();
+    // fmt rather than chained operator+: GCC 12 warns falsely (-Wrestrict) on the latter.
+    const auto name =
+        fmt::format(".{}.tmp-{}-{}", p.filename().string(), ::getpid(), rd() % 1000000);
+    return (p.parent_path() / name).string();
 }
 
 } // namespace
@@ -49,9 +53,9 @@ void AtomicOutput::commit() {
     if (comm_)
         MPI_Barrier(*comm_); // all ranks have closed the file
     if (renamer && std::rename(temporary_.c_str(), final_.c_str()) != 0) {
-        fault = LocalFault{0, ExitCode::output_failed,
-                           final_ + ": cannot move the finished file into place: " +
-                               std::strerror(errno)};
+        fault = LocalFault{
+            0, ExitCode::output_failed,
+            final_ + ": cannot move the finished file into place: " + std::strerror(errno)};
         std::remove(temporary_.c_str());
     }
     if (comm_)

@@ -5,7 +5,9 @@
 
 namespace longrun::io {
 
-std::string to_string(ChainKind kind) { return kind == ChainKind::ctmc ? "ctmc" : "dtmc"; }
+std::string to_string(ChainKind kind) {
+    return kind == ChainKind::ctmc ? "ctmc" : "dtmc";
+}
 
 std::optional<ChainKind> parse_kind(const std::string& text) {
     if (text == "ctmc")
@@ -15,9 +17,8 @@ std::optional<ChainKind> parse_kind(const std::string& text) {
     return std::nullopt;
 }
 
-Chain chain_from_triples(ChainKind kind, std::uint64_t states,
-                         std::vector<std::uint64_t> sources, std::vector<std::uint64_t> targets,
-                         std::vector<double> weights) {
+Chain chain_from_triples(ChainKind kind, std::uint64_t states, std::vector<std::uint64_t> sources,
+                         std::vector<std::uint64_t> targets, std::vector<double> weights) {
     Chain c;
     c.kind = kind;
     c.states = states;

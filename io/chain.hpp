@@ -18,8 +18,8 @@ std::optional<ChainKind> parse_kind(const std::string& text);
 
 struct StateVariable {
     std::string name;
-    bool integral = true;       // stored as i64 (true) or f64 (false)
-    std::vector<double> values; // one per row of the slice; integers exact up to 2^53
+    bool integral = true;               // stored as i64 (true) or f64 (false)
+    std::vector<double> values;         // one per row of the slice; integers exact up to 2^53
     std::optional<double> lower, upper; // declared bounds, if any
 };
 
@@ -49,8 +49,7 @@ struct Chain {
 
 // Builds a whole chain from (source, target, weight) triples in any order;
 // duplicates are kept as they are (validation reports them).
-Chain chain_from_triples(ChainKind kind, std::uint64_t states,
-                         std::vector<std::uint64_t> sources, std::vector<std::uint64_t> targets,
-                         std::vector<double> weights);
+Chain chain_from_triples(ChainKind kind, std::uint64_t states, std::vector<std::uint64_t> sources,
+                         std::vector<std::uint64_t> targets, std::vector<double> weights);
 
 } // namespace longrun::io

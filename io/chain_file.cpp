@@ -96,8 +96,7 @@ ChainHeader read_chain_header(const std::string& path, MPI_Comm comm) {
             }
             {
                 h5::Handle d = h5::open_dataset(f, "/chain/weights", path);
-                require_class(d, path, "/chain/weights", {h5::Numeric::floating},
-                              "floating point");
+                require_class(d, path, "/chain/weights", {h5::Numeric::floating}, "floating point");
                 require_length(d, path, "/chain/weights", h.transitions, "transitions");
             }
             if (h5::exists(f, "/chain/events")) {
@@ -156,9 +155,7 @@ ChainHeader read_chain_header(const std::string& path, MPI_Comm comm) {
     // Share the header: a small text record is simpler than an MPI datatype.
     std::string record;
     if (comm_rank(comm) == 0) {
-        auto put = [&](const std::string& s) {
-            record += std::to_string(s.size()) + ":" + s;
-        };
+        auto put = [&](const std::string& s) { record += std::to_string(s.size()) + ":" + s; };
         put(to_string(h.kind));
         put(std::to_string(h.states));
         put(std::to_string(h.transitions));
@@ -222,9 +219,8 @@ std::vector<std::uint64_t> read_offsets(const ChainHeader& header, RowRange rows
     h5::Handle d = h5::open_dataset(f, "/chain/offsets", header.path);
     try {
         // Every rank calls the collective read, also those with no rows.
-        offsets = h5::read_range<std::uint64_t>(d, rows.begin, rows.size() + 1,
-                                                h5::Access::collective, header.path,
-                                                "/chain/offsets");
+        offsets = h5::read_range<std::uint64_t>(
+            d, rows.begin, rows.size() + 1, h5::Access::collective, header.path, "/chain/offsets");
     } catch (const Error& e) {
         fault = LocalFault{rows.begin, e.code(), e.what()};
     }
@@ -233,8 +229,9 @@ std::vector<std::uint64_t> read_offsets(const ChainHeader& header, RowRange rows
 }
 
 static std::optional<LocalFault> validate_offsets(const std::vector<std::uint64_t>& offsets,
-                                           RowRange rows, std::uint64_t states,
-                                           std::uint64_t transitions, const std::string& file) {
+                                                  RowRange rows, std::uint64_t states,
+                                                  std::uint64_t transitions,
+                                                  const std::string& file) {
     const std::string ds = "/chain/offsets";
     if (rows.begin == 0 && offsets.front() != 0)
         return LocalFault{0, ExitCode::bad_input,
@@ -283,11 +280,12 @@ std::optional<LocalFault> validate_slice(Chain& c, const std::string& file,
                         " (targets must increase strictly within a row)"};
             const double w = c.weights[k];
             if (!std::isfinite(w) || w < 0)
-                return LocalFault{row, ExitCode::bad_input,
-                                  row_prefix(file, "/chain/weights", row) + "weight " +
-                                      fmt_double(w) + " towards state " + std::to_string(t) +
-                                      " is " + (std::isfinite(w) ? "negative" : "not finite") +
-                                      (ctmc ? " (rates must be > 0)" : " (probabilities must be >= 0)")};
+                return LocalFault{
+                    row, ExitCode::bad_input,
+                    row_prefix(file, "/chain/weights", row) + "weight " + fmt_double(w) +
+                        " towards state " + std::to_string(t) + " is " +
+                        (std::isfinite(w) ? "negative" : "not finite") +
+                        (ctmc ? " (rates must be > 0)" : " (probabilities must be >= 0)")};
             if (w == 0)
                 ++report.explicit_zeros;
             if (ctmc && t == row)
@@ -303,13 +301,13 @@ std::optional<LocalFault> validate_slice(Chain& c, const std::string& file,
         const bool beyond_tolerance = !ctmc && off > options.row_sum_tolerance;
         if (beyond_tolerance) {
             if (!options.renormalize || sum == 0)
-                return LocalFault{
-                    row, ExitCode::bad_input,
-                    row_prefix(file, "/chain/weights", row) + "probabilities sum to " +
-                        fmt_double(sum) + ", not 1 (tolerance " +
-                        fmt_double(options.row_sum_tolerance) +
-                        (sum == 0 ? "; an empty row cannot be renormalized)"
-                                  : "; --renormalize rescales such rows)")};
+                return LocalFault{row, ExitCode::bad_input,
+                                  row_prefix(file, "/chain/weights", row) +
+                                      "probabilities sum to " + fmt_double(sum) +
+                                      ", not 1 (tolerance " +
+                                      fmt_double(options.row_sum_tolerance) +
+                                      (sum == 0 ? "; an empty row cannot be renormalized)"
+                                                : "; --renormalize rescales such rows)")};
             ++report.renormalized_rows;
             report.largest_correction = std::max(report.largest_correction, off);
         }
@@ -363,14 +361,13 @@ Chain read_chain_slice(const ChainHeader& h, RowRange rows, MPI_Comm comm,
     };
     // Every rank performs every collective read in the same order, even after a
     // local failure, so that no rank is left waiting.
-    auto read_all = [&](const std::string& name, auto& out, std::uint64_t offset,
-                        std::uint64_t n) {
+    auto read_all = [&](const std::string& name, auto& out, std::uint64_t offset, std::uint64_t n) {
         using T = typename std::decay_t<decltype(out)>::value_type;
         h5::Handle d = h5::open_dataset(f, name, file);
         out.assign(n, T{});
         guarded([&] {
-            h5::read_range(d, h5::native_type<T>(), offset, n, out.data(),
-                           h5::Access::collective, file, name);
+            h5::read_range(d, h5::native_type<T>(), offset, n, out.data(), h5::Access::collective,
+                           file, name);
         });
     };
     read_all("/chain/targets", c.targets, first, count);

@@ -35,10 +35,10 @@ struct ValidationOptions {
 
 // What validation saw and did; reduced over all ranks by read_chain_slice.
 struct ValidationReport {
-    std::uint64_t ctmc_self_loops = 0;    // ignored: a rate from a state to itself does nothing
-    std::uint64_t explicit_zeros = 0;     // zero weights present in the file
-    std::uint64_t renormalized_rows = 0;  // dtmc rows rescaled on request
-    double largest_correction = 0;        // max |row sum - 1| among them
+    std::uint64_t ctmc_self_loops = 0;   // ignored: a rate from a state to itself does nothing
+    std::uint64_t explicit_zeros = 0;    // zero weights present in the file
+    std::uint64_t renormalized_rows = 0; // dtmc rows rescaled on request
+    double largest_correction = 0;       // max |row sum - 1| among them
 };
 
 // Collective over comm (every rank gets the same header).
@@ -64,7 +64,7 @@ void write_chain_file(const std::string& path, const Chain& chain, h5::Layout la
 // Checks the slice in memory (also used on chains built from Matrix Market).
 // Returns the first fault of the slice (row is global); may renormalize rows.
 std::optional<LocalFault> validate_slice(Chain& chain, const std::string& file,
-                                                const ValidationOptions& options,
-                                                ValidationReport& report);
+                                         const ValidationOptions& options,
+                                         ValidationReport& report);
 
 } // namespace longrun::io

@@ -9,12 +9,12 @@ namespace longrun {
 
 enum class ExitCode : int {
     ok = 0,
-    usage = 1,           // the command line itself is wrong
-    bad_input = 2,       // an input file is unreadable, malformed or inconsistent
-    no_unique = 3,       // the chain has no unique stationary distribution
-    numerical = 4,       // no method reached the certificate within tolerance
-    disagreement = 5,    // reserved: simulation disagrees with a solved result
-    output_failed = 6,   // the result could not be written (disk full, permissions)
+    usage = 1,         // the command line itself is wrong
+    bad_input = 2,     // an input file is unreadable, malformed or inconsistent
+    no_unique = 3,     // the chain has no unique stationary distribution
+    numerical = 4,     // no method reached the certificate within tolerance
+    disagreement = 5,  // reserved: simulation disagrees with a solved result
+    output_failed = 6, // the result could not be written (disk full, permissions)
 };
 
 class Error : public std::runtime_error {

@@ -7,7 +7,9 @@
 
 namespace longrun::h5 {
 
-void silence_library_errors() { H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr); }
+void silence_library_errors() {
+    H5Eset_auto2(H5E_DEFAULT, nullptr, nullptr);
+}
 
 void fail(Side side, const std::string& file, const std::string& what) {
     const std::string message = file + ": " + what;
@@ -217,7 +219,8 @@ double read_f64_attribute(hid_t loc, const std::string& name, const std::string&
     Handle type(H5Aget_type(a), H5Tclose);
     const auto cls = H5Tget_class(type);
     if ((cls != H5T_INTEGER && cls != H5T_FLOAT) || attribute_elements(a) != 1)
-        fail(Side::reading, file, "attribute '" + name + "' of '" + object + "' should be a number");
+        fail(Side::reading, file,
+             "attribute '" + name + "' of '" + object + "' should be a number");
     double value = 0;
     if (H5Aread(a, H5T_NATIVE_DOUBLE, &value) < 0)
         fail(Side::reading, file, "cannot read attribute '" + name + "'");

@@ -116,12 +116,12 @@ hid_t native_type() {
 
 // Reads elements [offset, offset + count) of a 1-d dataset. With Access::collective
 // every rank of the file's communicator must call, also with count == 0.
-void read_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64_t count,
-                void* out, Access access, const std::string& file, const std::string& name);
+void read_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64_t count, void* out,
+                Access access, const std::string& file, const std::string& name);
 
 template <class T>
-std::vector<T> read_range(hid_t dataset, std::uint64_t offset, std::uint64_t count,
-                          Access access, const std::string& file, const std::string& name) {
+std::vector<T> read_range(hid_t dataset, std::uint64_t offset, std::uint64_t count, Access access,
+                          const std::string& file, const std::string& name) {
     std::vector<T> out(count);
     read_range(dataset, native_type<T>(), offset, count, out.data(), access, file, name);
     return out;
@@ -137,8 +137,7 @@ Handle create_dataset(hid_t loc, const std::string& name, hid_t filetype, std::u
 
 // Writes elements [offset, offset + count); collective when access says so.
 void write_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64_t count,
-                 const void* data, Access access, const std::string& file,
-                 const std::string& name);
+                 const void* data, Access access, const std::string& file, const std::string& name);
 
 template <class T>
 void write_whole(hid_t loc, const std::string& name, const std::vector<T>& data,

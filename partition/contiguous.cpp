@@ -14,8 +14,8 @@ RowRange even_rows(std::uint64_t states, int parts, int index) {
 }
 
 RowRange balance_by_nonzeros(MPI_Comm comm, RowRange even,
-                             const std::vector<std::uint64_t>& offsets_slice,
-                             std::uint64_t states, std::uint64_t transitions) {
+                             const std::vector<std::uint64_t>& offsets_slice, std::uint64_t states,
+                             std::uint64_t transitions) {
     int size = 1, rank = 0;
     MPI_Comm_size(comm, &size);
     MPI_Comm_rank(comm, &rank);

@@ -24,8 +24,8 @@ RowRange even_rows(std::uint64_t states, int parts, int index);
 // rank's rows so that each rank's cost, transitions + rows, is as equal as rows
 // allow. A single row with very many transitions can leave ranks with no rows.
 RowRange balance_by_nonzeros(MPI_Comm comm, RowRange even,
-                             const std::vector<std::uint64_t>& offsets_slice,
-                             std::uint64_t states, std::uint64_t transitions);
+                             const std::vector<std::uint64_t>& offsets_slice, std::uint64_t states,
+                             std::uint64_t transitions);
 
 // All ranks' ranges from one rank's: collective (allgather).
 std::vector<RowRange> gather_ranges(MPI_Comm comm, RowRange mine);

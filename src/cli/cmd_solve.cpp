@@ -26,7 +26,7 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
         require_writable_folder(o.output);
         o.request.output = o.output;
     }
-    o.request.preconditioner = o.preconditioner == "ilu" ? solve::LinearPreconditioner::ilu
+    o.request.preconditioner = o.preconditioner == "ilu"  ? solve::LinearPreconditioner::ilu
                                : o.preconditioner == "lu" ? solve::LinearPreconditioner::lu
                                                           : solve::LinearPreconditioner::amg;
     o.request.progress = !o.quiet;

@@ -4,8 +4,8 @@
 
 namespace longrun::cli {
 
-LoadedChain load_chain(const std::string& path, MPI_Comm comm,
-                       const io::ValidationOptions& options, std::optional<RowRange> rows) {
+LoadedChain load_chain(const std::string& path, MPI_Comm comm, const io::ValidationOptions& options,
+                       std::optional<RowRange> rows) {
     LoadedChain out;
     out.header = io::read_chain_header(path, comm);
     const auto& h = out.header;

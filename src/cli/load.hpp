@@ -18,8 +18,7 @@ struct LoadedChain {
 
 // Collective. `rows`, when given, overrides the partition (tests use it to give a
 // rank no rows).
-LoadedChain load_chain(const std::string& path, MPI_Comm comm,
-                       const io::ValidationOptions& options,
+LoadedChain load_chain(const std::string& path, MPI_Comm comm, const io::ValidationOptions& options,
                        std::optional<RowRange> rows = std::nullopt);
 
 } // namespace longrun::cli

@@ -11,7 +11,8 @@ namespace longrun::cli {
 inline void require_distinct(const std::string& input, const std::string& output) {
     std::error_code ec;
     if (std::filesystem::exists(output, ec) && std::filesystem::equivalent(input, output, ec))
-        throw UsageError("the output '" + output + "' is the input file; longrun never "
+        throw UsageError("the output '" + output +
+                         "' is the input file; longrun never "
                          "writes into its input");
 }
 

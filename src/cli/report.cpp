@@ -57,11 +57,12 @@ nlohmann::json to_json(const SolveReport& r) {
         nlohmann::json tail = nlohmann::json::array();
         for (const auto& [v, p] : summary::informative_tail(m))
             tail.push_back({{"at_least", v}, {"probability", p}});
-        vars.push_back({{"name", m.name},
-                        {"mean", m.mean},
-                        {"std", m.std},
-                        {"quantiles", {{"50", m.q50}, {"90", m.q90}, {"99", m.q99}, {"99.9", m.q999}}},
-                        {"tail", tail}});
+        vars.push_back(
+            {{"name", m.name},
+             {"mean", m.mean},
+             {"std", m.std},
+             {"quantiles", {{"50", m.q50}, {"90", m.q90}, {"99", m.q99}, {"99.9", m.q999}}},
+             {"tail", tail}});
     }
     j["variables"] = vars;
     j["output"] = r.output ? nlohmann::json(*r.output) : nlohmann::json(nullptr);
@@ -81,8 +82,9 @@ std::string to_text(const SolveReport& r) {
     t += fmt::format("certificate  {} = {:.2e} <= {:.1e}: certified\n", r.residual_definition,
                      r.certificate.residual, r.tolerance);
     if (r.certificate.clipped_mass > 0)
-        t += fmt::format("             {:.2e} of negative rounding mass clipped (min entry {:.2e})\n",
-                         r.certificate.clipped_mass, r.certificate.min_entry);
+        t += fmt::format(
+            "             {:.2e} of negative rounding mass clipped (min entry {:.2e})\n",
+            r.certificate.clipped_mass, r.certificate.min_entry);
     if (r.validation.renormalized_rows > 0)
         t += fmt::format("input        {} row(s) renormalized, largest correction {:.3g}\n",
                          r.validation.renormalized_rows, r.validation.largest_correction);
@@ -91,8 +93,8 @@ std::string to_text(const SolveReport& r) {
     if (r.output)
         t += fmt::format("result       {}\n", *r.output);
     if (!r.variables.empty()) {
-        t += fmt::format("\n{:<14} {:>12} {:>12} {:>9} {:>9} {:>9} {:>9}   tail mass\n",
-                         "variable", "mean", "std", "50%", "90%", "99%", "99.9%");
+        t += fmt::format("\n{:<14} {:>12} {:>12} {:>9} {:>9} {:>9} {:>9}   tail mass\n", "variable",
+                         "mean", "std", "50%", "90%", "99%", "99.9%");
         for (const auto& m : r.variables) {
             std::string tail;
             for (const auto& [v, p] : summary::informative_tail(m))

@@ -17,7 +17,7 @@
 namespace longrun::cli {
 
 std::uint64_t peak_memory_bytes(MPI_Comm comm) {
-    struct rusage usage{};
+    struct rusage usage {};
     getrusage(RUSAGE_SELF, &usage);
     std::uint64_t mine = static_cast<std::uint64_t>(usage.ru_maxrss) * 1024; // Linux: KiB
     std::uint64_t largest = 0;
@@ -42,7 +42,7 @@ io::ResultContent result_content(const SolveReport& r, const std::string& chain_
     c.origin.chain_path = chain_path;
     c.origin.tool_version = LONGRUN_VERSION;
     c.origin.kind = io::to_string(r.kind);
-    struct stat st{};
+    struct stat st {};
     if (::stat(chain_path.c_str(), &st) == 0) {
         c.origin.chain_bytes = static_cast<std::uint64_t>(st.st_size);
         c.origin.chain_mtime = static_cast<std::int64_t>(st.st_mtime);
@@ -91,8 +91,8 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     // The method list is checked before any file is touched.
     (void)solve::plan_for(request.method);
 
-    LoadedChain loaded = load_chain(request.chain_path, comm, request.validation,
-                                    request.forced_rows);
+    LoadedChain loaded =
+        load_chain(request.chain_path, comm, request.validation, request.forced_rows);
     const io::Chain& chain = loaded.chain;
     SolveReport report;
     report.chain_path = request.chain_path;

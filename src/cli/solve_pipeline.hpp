@@ -44,8 +44,8 @@ struct SolveReport {
     std::uint64_t peak_memory_bytes = 0;
     std::vector<summary::Marginal> variables;
     std::optional<std::string> output;
-    RowRange rows;                  // this rank's rows
-    std::vector<double> local_pi;   // this rank's entries of the distribution
+    RowRange rows;                // this rank's rows
+    std::vector<double> local_pi; // this rank's entries of the distribution
 };
 
 // Collective. Throws NumericalError (exit 4) when no method met the certificate;

@@ -10,7 +10,7 @@
 namespace longrun::solve {
 
 struct TransposedChain {
-    MatHandle matrix;          // Q^T or P^T
+    MatHandle matrix; // Q^T or P^T
     TimeModel time = TimeModel::continuous;
     double uniformisation = 1; // ctmc: max_i |q_ii| (the residual's scale); dtmc: 1
     PetscInt states = 0;

@@ -65,8 +65,8 @@ Certificate certify(const TransposedChain& a, Vec x) {
         return c;
     }
     if (c.min_entry < negative_entry_limit) {
-        c.problem = "entry " + std::to_string(where) + " is negative (" +
-                    std::to_string(c.min_entry) + ")";
+        c.problem =
+            "entry " + std::to_string(where) + " is negative (" + std::to_string(c.min_entry) + ")";
         return c;
     }
     c.valid = true;

@@ -14,17 +14,17 @@ namespace longrun::solve {
 enum class LinearPreconditioner { amg, ilu, lu };
 
 struct MethodSettings {
-    double tolerance = 1e-10;  // on the certificate's residual
-    int max_rounds = 5;        // solve, certify, tighten the solver's tolerance, repeat
+    double tolerance = 1e-10; // on the certificate's residual
+    int max_rounds = 5;       // solve, certify, tighten the solver's tolerance, repeat
     LinearPreconditioner preconditioner = LinearPreconditioner::amg;
     Progress* progress = nullptr;
 };
 
 struct Attempt {
     std::string method;
-    VecHandle x;             // normalised (sum 1)
-    Certificate certificate; // of x
-    long iterations = 0;     // the method's own iterations, over all rounds
+    VecHandle x;                 // normalised (sum 1)
+    Certificate certificate;     // of x
+    long iterations = 0;         // the method's own iterations, over all rounds
     std::vector<double> history; // the method's own residual per iteration
     std::vector<std::string> notes;
 };

@@ -95,8 +95,8 @@ void configure_preconditioner(PC pc, LinearPreconditioner kind) {
 }
 
 // pin == no_pin: the singular system A x = 0 itself.
-Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin,
-                     const MethodSettings& s, Attempt attempt) {
+Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin, const MethodSettings& s,
+                     Attempt attempt) {
     MPI_Comm comm = PetscObjectComm((PetscObject)a.matrix.get());
     MatHandle m;
     check(MatDuplicate(a.matrix, MAT_COPY_VALUES, m.out()), "MatDuplicate");
@@ -196,8 +196,8 @@ Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSetting
     PetscBool given = PETSC_FALSE;
     check(PetscOptionsGetInt(nullptr, "linear_", "-pin", &chosen, &given), "PetscOptionsGetInt");
     if (given && (chosen < 0 || chosen >= a.states))
-        throw UsageError(fmt::format("-linear_pin {} is not a state (0..{})", chosen,
-                                     a.states - 1));
+        throw UsageError(
+            fmt::format("-linear_pin {} is not a state (0..{})", chosen, a.states - 1));
     if (!given) {
         // First the singular system itself, from a positive start: Krylov
         // corrections live in the range of A, so the start's component along pi

@@ -2,7 +2,9 @@
 
 namespace longrun::solve {
 
-void use_exceptions_for_petsc_errors() { PetscPushErrorHandler(PetscReturnErrorHandler, nullptr); }
+void use_exceptions_for_petsc_errors() {
+    PetscPushErrorHandler(PetscReturnErrorHandler, nullptr);
+}
 
 void check(PetscErrorCode code, const char* what) {
     if (code == 0)

@@ -4,7 +4,9 @@
 
 namespace longrun::solve {
 
-std::vector<std::string> method_names() { return {"auto", "linear", "eigen"}; }
+std::vector<std::string> method_names() {
+    return {"auto", "linear", "eigen"};
+}
 
 std::vector<std::string> plan_for(const std::string& method) {
     if (method == "auto")
@@ -23,20 +25,19 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
         record.method = name;
         Vec warm = best.x ? best.x.get() : nullptr;
         try {
-            Attempt at = name == "linear" ? run_linear(a, warm, settings)
-                                          : run_eigen(a, warm, settings);
+            Attempt at =
+                name == "linear" ? run_linear(a, warm, settings) : run_eigen(a, warm, settings);
             record.iterations = at.iterations;
             record.residual = at.certificate.residual;
             record.met = at.certificate.meets(settings.tolerance);
             record.history = at.history;
             record.notes = at.notes;
-            record.outcome =
-                record.met ? fmt::format("certified residual {:.3e} <= {:.1e}",
-                                         record.residual, settings.tolerance)
-                : at.certificate.valid
-                    ? fmt::format("certified residual {:.3e} > {:.1e}", record.residual,
-                                  settings.tolerance)
-                    : "no valid iterate: " + at.certificate.problem;
+            record.outcome = record.met ? fmt::format("certified residual {:.3e} <= {:.1e}",
+                                                      record.residual, settings.tolerance)
+                             : at.certificate.valid
+                                 ? fmt::format("certified residual {:.3e} > {:.1e}",
+                                               record.residual, settings.tolerance)
+                                 : "no valid iterate: " + at.certificate.problem;
             out.iterations += at.iterations;
             if (at.x && is_better(at.certificate, best))
                 best = std::move(at);

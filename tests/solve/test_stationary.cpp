@@ -47,10 +47,9 @@ TEST_P(StationaryByMethod, LandOfOzWeatherMatchesThePrintedFixedVector) {
     // Rain, Nice, Snow. Grinstead & Snell, Introduction to Probability, ch. 11
     // (the Land of Oz example); printed fixed vector w = (.4, .2, .4) (recalled
     // from memory; it also follows by hand from w P = w).
-    const auto path = write(testing_support::dense_dtmc({{0.5, 0.25, 0.25},
-                                                         {0.5, 0.0, 0.5},
-                                                         {0.25, 0.25, 0.5}}),
-                            "oz.h5");
+    const auto path =
+        write(testing_support::dense_dtmc({{0.5, 0.25, 0.25}, {0.5, 0.0, 0.5}, {0.25, 0.25, 0.5}}),
+              "oz.h5");
     const auto pi = gather(solve(path, GetParam(), 1e-14));
     EXPECT_LT(max_abs_difference(pi, {0.4, 0.2, 0.4}), 1e-13);
 }
@@ -102,8 +101,12 @@ TEST_P(StationaryByMethod, TandemLineAgreesWithGthElimination) {
     const auto chain = testing_support::tandem(24, 30, 1.0, 1.3, 1.1);
     const auto path = write(chain, "tandem.h5");
     const auto pi = gather(solve(path, GetParam(), 1e-14));
-    solve::LocalRows rows{solve::TimeModel::continuous, chain.states, chain.rows,
-                          chain.offsets, chain.targets, chain.weights};
+    solve::LocalRows rows{solve::TimeModel::continuous,
+                          chain.states,
+                          chain.rows,
+                          chain.offsets,
+                          chain.targets,
+                          chain.weights};
     const auto reference = solve::gth_stationary(rows);
     EXPECT_LT(max_abs_difference(pi, reference), 5e-13);
 }
@@ -154,8 +157,8 @@ TEST_F(Partitions, FirstRankWithoutRowsWorksToo) {
     const auto chain = testing_support::birth_death(2, 40, 1.5, 1.0);
     const auto path = write(chain, "bd-empty-first.h5");
     const std::uint64_t n = chain.states;
-    const RowRange rows = rank == 0 ? RowRange{0, 0}
-                                    : RowRange{(rank - 1) * n / (size - 1), rank * n / (size - 1)};
+    const RowRange rows =
+        rank == 0 ? RowRange{0, 0} : RowRange{(rank - 1) * n / (size - 1), rank * n / (size - 1)};
     const auto pi = gather(solve(path, "auto", 1e-13, rows));
     EXPECT_LT(max_abs_difference(pi, testing_support::mmck_closed_form(2, 40, 1.5, 1.0)), 1e-12);
 }

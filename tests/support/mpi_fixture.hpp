@@ -23,9 +23,9 @@ class MpiTest : public ::testing::Test {
         std::string dir;
         if (rank == 0) {
             std::random_device rd;
-            dir = (std::filesystem::temp_directory_path() /
-                   ("longrun-test-" + std::to_string(rd())))
-                      .string();
+            dir =
+                (std::filesystem::temp_directory_path() / ("longrun-test-" + std::to_string(rd())))
+                    .string();
             std::filesystem::create_directories(dir);
         }
         unsigned long n = dir.size();

@@ -84,8 +84,7 @@ inline io::Chain tandem(int n1, int n2, double lambda, double mu1, double mu2) {
                 w.push_back(mu2);
             }
         }
-    io::Chain chain =
-        io::chain_from_triples(io::ChainKind::ctmc, std::uint64_t(n1) * n2, s, t, w);
+    io::Chain chain = io::chain_from_triples(io::ChainKind::ctmc, std::uint64_t(n1) * n2, s, t, w);
     io::StateVariable q1{"q1", true, {}, 0.0, double(n1 - 1)};
     io::StateVariable q2{"q2", true, {}, 0.0, double(n2 - 1)};
     for (int a = 0; a < n1; ++a)

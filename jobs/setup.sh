@@ -1,0 +1,90 @@
+#!/usr/bin/env bash
+# One entry point for a fresh Debian machine:
+#   bash jobs/setup.sh demo   install packages, build, solve the shipped demo chain
+#   bash jobs/setup.sh test   install packages, build, run every test (CI runs this)
+set -euo pipefail
+
+here=$(cd "$(dirname "${BASH_SOURCE[0]}")/.." && pwd)
+cd "$here"
+build=${LONGRUN_BUILD:-build}
+jobs=$(nproc 2>/dev/null || echo 2)
+
+packages=(
+  build-essential cmake pkg-config git
+  openmpi-bin libopenmpi-dev libhdf5-openmpi-dev
+  petsc-dev slepc-dev
+  libcli11-dev nlohmann-json3-dev libfmt-dev libgtest-dev
+  python3 python3-numpy python3-scipy python3-h5py
+  clang-format
+)
+
+install_packages() {
+  local missing=()
+  for p in "${packages[@]}"; do
+    dpkg-query -W -f='${Status}' "$p" 2>/dev/null | grep -q "install ok installed" ||
+      missing+=("$p")
+  done
+  ((${#missing[@]} == 0)) && return 0
+  echo "installing: ${missing[*]}"
+  local sudo=()
+  ((EUID == 0)) || sudo=(sudo)
+  "${sudo[@]}" apt-get update -qq
+  DEBIAN_FRONTEND=noninteractive "${sudo[@]}" apt-get install -y -qq --no-install-recommends \
+    "${missing[@]}"
+}
+
+build_release() {
+  cmake -S . -B "$build" -DCMAKE_BUILD_TYPE=Release
+  cmake --build "$build" -j "$jobs"
+}
+
+# mpirun refuses root unless told otherwise; containers and CI run as root.
+mpi_env() {
+  if ((EUID == 0)); then
+    export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
+  fi
+  export OMP_NUM_THREADS=1
+}
+
+run_demo() {
+  mpi_env
+  local out="$build/demo"
+  mkdir -p "$out"
+  echo "== longrun solve on 1 rank"
+  "$build/src/longrun" solve jobs/demo/parcel-hub.h5 -o "$out/hub-result.h5"
+  echo
+  echo "== the same on 2 ranks"
+  mpirun -n 2 --oversubscribe "$build/src/longrun" solve jobs/demo/parcel-hub.h5 \
+    -o "$out/hub-result-2ranks.h5" --quiet
+  echo
+  echo "results: $out/hub-result.h5 and $out/hub-result-2ranks.h5 (open with h5dump or h5py)"
+}
+
+check_format() {
+  local files
+  mapfile -t files < <(git ls-files '*.cpp' '*.hpp')
+  ((${#files[@]} == 0)) && return 0
+  clang-format --dry-run --Werror "${files[@]}"
+  echo "clang-format: ${#files[@]} files clean"
+}
+
+run_tests() {
+  mpi_env
+  check_format
+  ctest --test-dir "$build" --output-on-failure -j "$jobs"
+  # Unit tests again under address and undefined-behaviour sanitizers.
+  cmake -S . -B "$build-asan" -DCMAKE_BUILD_TYPE=Debug -DLONGRUN_SANITIZE=ON
+  cmake --build "$build-asan" -j "$jobs" --target longrun_unit_tests
+  # Open MPI keeps some memory until exit by design; leaks are not what this checks.
+  ASAN_OPTIONS=detect_leaks=0:abort_on_error=1 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 \
+    ctest --test-dir "$build-asan" --output-on-failure -L unit
+}
+
+case "${1:-}" in
+  demo) install_packages && build_release && run_demo ;;
+  test) install_packages && build_release && run_tests ;;
+  *)
+    echo "usage: bash jobs/setup.sh demo|test" >&2
+    exit 1
+    ;;
+esac
