@@ -30,6 +30,18 @@ bool looks_like_matrix_market(const std::string& path) {
     return std::string(head, static_cast<std::size_t>(in.gcount())) == "%%MatrixMarket";
 }
 
+// The validator speaks of a chain file: its datasets and 0-based rows. Someone
+// holding a Matrix Market file has neither, and counts its rows from 1: say
+// "row 134" for the file's row 134, not "/chain/weights: row 133".
+Error in_matrix_market_terms(const LocalFault& fault, const std::string& file) {
+    const std::string chain_terms = ": row " + std::to_string(fault.row) + ": ";
+    std::string detail = fault.message;
+    if (const auto at = detail.find(chain_terms); at != std::string::npos)
+        detail.erase(0, at + chain_terms.size());
+    return Error(fault.code, fmt::format("{}: row {} (state {} counting from 0): {}", file,
+                                         fault.row + 1, fault.row, detail));
+}
+
 int convert(MPI_Comm comm, const ConvertOptions& o) {
     require_distinct(o.input, o.output);
     require_writable_folder(o.output);
@@ -51,7 +63,7 @@ int convert(MPI_Comm comm, const ConvertOptions& o) {
         if (from_mtx) {
             io::Chain chain = io::read_matrix_market(o.input, *io::parse_kind(o.kind));
             if (auto fault = io::validate_slice(chain, o.input, o.validation, report))
-                throw Error(fault->code, fault->message);
+                throw in_matrix_market_terms(*fault, o.input);
             io::write_chain_file(o.output, chain, {o.chunk, o.deflate});
             summary = fmt::format("wrote {}: {} chain, {} states, {} transitions", o.output,
                                   io::to_string(chain.kind), chain.states, chain.transitions);
@@ -69,8 +81,7 @@ int convert(MPI_Comm comm, const ConvertOptions& o) {
         }
         if (report.renormalized_rows > 0)
             summary += fmt::format("; renormalized {} row(s), largest correction {}",
-                                   report.renormalized_rows,
-                                   fmt_double(report.largest_correction));
+                                   report.renormalized_rows, fmt_double(report.largest_correction));
         if (report.ctmc_self_loops > 0)
             summary += fmt::format("; warning: {} rate(s) from a state to itself are ignored",
                                    report.ctmc_self_loops);
@@ -94,6 +105,8 @@ Action add_convert(CLI::App& app) {
         "The input is validated; a dtmc whose rows do not sum to 1 is refused unless\n"
         "--renormalize is given.");
     // Existence is the reader's check (exit 2), as for `solve`.
+    sub->footer("Exit codes: 0 done, 1 usage error, 2 bad input, 3 no unique stationary\n"
+                "distribution, 4 no certified answer within tolerance, 6 output not written.");
     sub->add_option("input", o->input, "Matrix Market (.mtx) or chain file (.h5)")->required();
     sub->add_option("output", o->output, "output file: .mtx for Matrix Market, else chain file")
         ->required();

@@ -57,6 +57,8 @@ Action add_solve(CLI::App& app) {
         "ctmc uniformised; SLEPc prefix -eigen_).");
     // Existence is the reader's check, not the parser's: a missing or unreadable
     // input is bad input (exit 2), not a usage error.
+    sub->footer("Exit codes: 0 done, 1 usage error, 2 bad input, 3 no unique stationary\n"
+                "distribution, 4 no certified answer within tolerance, 6 output not written.");
     sub->add_option("chain", o->request.chain_path, "chain file (HDF5, longrun.chain v1)")
         ->required();
     sub->add_option("-o,--output", o->output,

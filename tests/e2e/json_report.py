@@ -1,0 +1,101 @@
+#!/usr/bin/python3
+"""`longrun solve CHAIN --json` prints exactly one JSON object on stdout.
+
+Usage: json_report.py CHAIN.h5 OUT_DIR RANKS
+
+Runs, on RANKS ranks (mpirun for more than one):
+  longrun solve CHAIN --json -q --tol 1e-12 -o OUT_DIR/json_npRANKS.h5
+  longrun solve CHAIN --json --tol 1e-12          (progress lines on, same stdout rule)
+and checks: exit 0; the whole of stdout parses as one JSON object (json.loads
+refuses a second object or stray text); it has chain, ranks, attempts,
+certificate and variables; certificate.certified is true with residual <= the
+tolerance; ranks and chain.states are right; -q leaves stderr empty; the
+variables are the chain's and their numbers are those written to the result file.
+"""
+
+import json
+import pathlib
+import sys
+
+import h5py
+
+from e2e_common import check, finish, read_chain, run, text
+
+TOL = 1e-12
+KEYS = ("chain", "ranks", "attempts", "certificate", "variables")
+
+
+def parse(done, what):
+    check(done.returncode == 0, f"{what}: exit {done.returncode}, stderr {done.stderr!r}")
+    try:
+        report = json.loads(done.stdout)
+    except json.JSONDecodeError as e:
+        check(False, f"{what}: stdout is not one JSON object ({e}): {done.stdout[:400]!r}")
+        return None
+    if not check(isinstance(report, dict), f"{what}: stdout is JSON but not an object"):
+        return None
+    return report
+
+
+def check_report(report, what, chain, ranks, variables):
+    for key in KEYS:
+        check(key in report, f"{what}: key {key!r} missing (has {sorted(report)})")
+    if not all(key in report for key in KEYS):
+        return
+    cert = report["certificate"]
+    check(cert.get("certified") is True, f"{what}: certificate.certified is {cert.get('certified')!r}")
+    check(isinstance(cert.get("residual"), float) and cert["residual"] <= TOL,
+          f"{what}: certificate.residual {cert.get('residual')!r}")
+    check(cert.get("tolerance") == TOL, f"{what}: certificate.tolerance {cert.get('tolerance')!r}")
+    check(report["ranks"] == ranks, f"{what}: ranks {report['ranks']!r}, ran {ranks}")
+    check(report["chain"].get("states") == variables["__states__"],
+          f"{what}: chain.states {report['chain'].get('states')!r}")
+    check(report["chain"].get("path") == chain, f"{what}: chain.path {report['chain'].get('path')!r}")
+    check(isinstance(report["attempts"], list) and len(report["attempts"]) >= 1
+          and report["attempts"][-1].get("certified") is True,
+          f"{what}: attempts {report['attempts']!r}")
+    names = [v.get("name") for v in report["variables"]]
+    check(names == variables["__order__"], f"{what}: variables {names}")
+
+
+def main(argv):
+    if len(argv) != 4:
+        raise SystemExit(__doc__)
+    chain, folder, ranks = argv[1], pathlib.Path(argv[2]), int(argv[3])
+    folder.mkdir(parents=True, exist_ok=True)
+    _, offsets, _, _, chain_variables = read_chain(chain)
+    expect = {"__states__": int(offsets.size - 1), "__order__": list(chain_variables)}
+    launch = {"ranks": ranks} if ranks > 1 else {}
+    out = folder / f"json_np{ranks}.h5"
+    out.unlink(missing_ok=True)
+    quiet = run(["solve", chain, "--json", "-q", "--tol", repr(TOL), "-o", str(out)], **launch)
+    report = parse(quiet, "--json -q")
+    check(quiet.stderr == "", f"--json -q: stderr is not empty: {quiet.stderr[:400]!r}")
+    if report is not None:
+        check_report(report, "--json -q", chain, ranks, expect)
+        check(report.get("output") == str(out), f"output {report.get('output')!r}")
+        if check(out.exists(), f"{out} was not written"):
+            with h5py.File(out, "r") as f:
+                for v in report["variables"]:
+                    g = f[f"summary/variables/{v['name']}"].attrs
+                    pairs = [("mean", v["mean"], g["mean"]), ("std", v["std"], g["std"])]
+                    for label, key in (("50", "q50"), ("90", "q90"), ("99", "q99"),
+                                       ("99.9", "q999")):
+                        pairs.append((key, v["quantiles"][label], g[key]))
+                    for label, in_json, in_file in pairs:
+                        check(in_json == float(in_file),
+                              f"variable {v['name']} {label}: JSON {in_json!r}, "
+                              f"result file {float(in_file)!r}")
+                check(text(f["certificate"].attrs["method"]) == report["certificate"]["method"],
+                      "certificate method differs between JSON and result file")
+
+    chatty = run(["solve", chain, "--json", "--tol", repr(TOL)], **launch)
+    report = parse(chatty, "--json with progress")
+    if report is not None:
+        check_report(report, "--json with progress", chain, ranks, expect)
+    check(chatty.stderr.strip() != "", "without -q, no progress lines appeared on stderr")
+    return finish(f"json_report np{ranks}")
+
+
+if __name__ == "__main__":
+    sys.exit(main(sys.argv))
