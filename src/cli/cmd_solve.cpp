@@ -80,6 +80,9 @@ Action add_solve(CLI::App& app) {
                     "allowed |row sum - 1| of a dtmc")
         ->default_val(1e-8)
         ->check(CLI::PositiveNumber);
+    sub->add_flag("--no-analysis{false}", o->request.analyse_structure,
+                  "skip the structure check (closed classes, period) that runs before solving; "
+                  "for chains too large to gather on one rank (over 2^31 - 1 transitions)");
     sub->add_flag("--json", o->json, "print the report as one JSON object on stdout");
     sub->add_flag("-q,--quiet", o->quiet, "no progress lines on stderr");
     return [o](MPI_Comm comm) { return solve_command(comm, *o); };

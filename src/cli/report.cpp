@@ -28,6 +28,16 @@ nlohmann::json to_json(const SolveReport& r) {
                   {"states", r.states},
                   {"transitions", r.transitions}};
     j["ranks"] = r.ranks;
+    if (r.structure) {
+        nlohmann::json periods = nlohmann::json::array();
+        for (const auto& c : r.structure->closed)
+            periods.push_back(c.period);
+        j["structure"] = {{"strongly_connected_components", r.structure->components},
+                          {"closed_classes", r.structure->closed.size()},
+                          {"transient_states", r.structure->transient},
+                          {"periods", periods},
+                          {"verdict", r.structure_verdict}};
+    }
     j["validation"] = {{"renormalized_rows", r.validation.renormalized_rows},
                        {"largest_correction", r.validation.largest_correction},
                        {"ctmc_self_loops_ignored", r.validation.ctmc_self_loops},
@@ -74,6 +84,8 @@ std::string to_text(const SolveReport& r) {
     t += fmt::format("chain        {}: {}, {} states, {} transitions\n", r.chain_path,
                      io::to_string(r.kind), r.states, r.transitions);
     t += fmt::format("ranks        {}\n", r.ranks);
+    if (r.structure)
+        t += fmt::format("structure    {}\n", r.structure_verdict);
     std::string tried;
     for (const auto& a : r.attempts)
         tried += (tried.empty() ? "" : ", ") + a.method;

@@ -2,6 +2,7 @@
 
 #include "load.hpp"
 #include "solve/assemble.hpp"
+#include "structure_report.hpp"
 
 #include <fmt/format.h>
 
@@ -114,14 +115,21 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         progress.note(fmt::format("warning: ignored {} rate(s) from a state to itself",
                                   loaded.validation.ctmc_self_loops));
 
-    solve::LocalRows rows;
-    rows.time = chain.kind == io::ChainKind::ctmc ? solve::TimeModel::continuous
-                                                  : solve::TimeModel::discrete;
-    rows.states = chain.states;
-    rows.rows = chain.rows;
-    rows.offsets = chain.offsets;
-    rows.targets = chain.targets;
-    rows.weights = chain.weights;
+    const solve::LocalRows rows = local_rows_of(chain);
+    if (request.analyse_structure) {
+        report.structure = analysis::analyse(comm, rows);
+        const StructureWords words = describe_structure(comm, chain, *report.structure);
+        report.structure_verdict = words.verdict;
+        if (!report.structure->unique()) {
+            // Every rank holds the same structure, so every rank throws this.
+            Error e(ExitCode::no_unique,
+                    fmt::format("{}: {} (details: longrun check {})", request.chain_path,
+                                words.verdict, request.chain_path));
+            e.mark_agreed();
+            throw e;
+        }
+        progress.note("structure: " + words.verdict);
+    }
     solve::TransposedChain a = solve::assemble_transposed(comm, rows);
     report.residual_definition = solve::residual_definition(rows.time);
 

@@ -3,6 +3,7 @@
 // directly (with forced partitions, for instance).
 #pragma once
 
+#include "analysis/structure.hpp"
 #include "io/chain_file.hpp"
 #include "io/result_file.hpp"
 #include "solve/method.hpp"
@@ -26,6 +27,7 @@ struct SolveRequest {
     solve::LinearPreconditioner preconditioner = solve::LinearPreconditioner::amg;
     bool progress = true;
     std::optional<RowRange> forced_rows; // tests: override the partition
+    bool analyse_structure = true;       // off only for chains too large to gather
 };
 
 struct SolveReport {
@@ -34,6 +36,8 @@ struct SolveReport {
     std::uint64_t states = 0, transitions = 0;
     int ranks = 1;
     io::ValidationReport validation;
+    std::optional<analysis::Structure> structure;
+    std::string structure_verdict;
     std::vector<solve::AttemptRecord> attempts;
     std::string method;
     long iterations = 0;
