@@ -21,7 +21,8 @@ void write_small(hid_t loc, const std::string& name, const std::vector<T>& data,
 } // namespace
 
 void write_result_file(const std::string& path, MPI_Comm comm, const ResultContent& content,
-                       RowRange rows, std::uint64_t states, const std::vector<double>& local) {
+                       RowRange rows, std::uint64_t states, const std::vector<double>& local,
+                       const LocalClassData* local_classes) {
     AtomicOutput out(path, comm);
     std::optional<LocalFault> fault;
     try {
@@ -34,10 +35,29 @@ void write_result_file(const std::string& path, MPI_Comm comm, const ResultConte
         h5::write_attribute(f, "chain_mtime", content.origin.chain_mtime, file);
         h5::write_attribute(f, "tool_version", content.origin.tool_version, file);
         h5::write_attribute(f, "kind", content.origin.kind, file);
-        {
+        if (content.has_distribution) {
             h5::Handle d = h5::create_dataset(f, "distribution", H5T_NATIVE_DOUBLE, states, file);
             h5::write_range(d, H5T_NATIVE_DOUBLE, rows.begin, rows.size(), local.data(),
                             h5::Access::collective, file, "/distribution");
+        }
+        if (content.classes && local_classes) {
+            const auto& c = *content.classes;
+            h5::Handle g = h5::create_group(f, "classes", file);
+            write_small(g, "sizes", c.sizes, comm, file);
+            write_small(g, "periods", c.periods, comm, file);
+            write_small(g, "residuals", c.residuals, comm, file);
+            if (!c.absorption.empty())
+                write_small(g, "absorption", c.absorption, comm, file);
+            if (!c.start.empty())
+                h5::write_attribute(g, "start", c.start, file);
+            h5::Handle ci = h5::create_dataset(g, "class_of", H5T_NATIVE_INT64, states, file);
+            h5::write_range(ci, H5T_NATIVE_INT64, rows.begin, rows.size(),
+                            local_classes->class_index.data(), h5::Access::collective, file,
+                            "/classes/class_of");
+            h5::Handle w = h5::create_dataset(g, "within", H5T_NATIVE_DOUBLE, states, file);
+            h5::write_range(w, H5T_NATIVE_DOUBLE, rows.begin, rows.size(),
+                            local_classes->within.data(), h5::Access::collective, file,
+                            "/classes/within");
         }
         {
             const auto& c = content.certificate;

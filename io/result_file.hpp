@@ -9,6 +9,7 @@
 #include <mpi.h>
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -55,8 +56,27 @@ struct DistributionSummary {
     double mean = 0, std = 0, q50 = 0, q90 = 0, q99 = 0, q999 = 0;
 };
 
+// Several closed classes (solve --per-class): per class its size, period, how
+// well its own stationary law is certified and, given a start, the probability
+// of ending in it.
+struct ClassesRecord {
+    std::vector<std::uint64_t> sizes;
+    std::vector<std::uint64_t> periods; // 0 for a ctmc
+    std::vector<double> residuals;
+    std::vector<double> absorption; // empty without a start
+    std::string start;              // how the start was given, or empty
+};
+
+// This rank's rows of the per-state class data.
+struct LocalClassData {
+    std::vector<std::int64_t> class_index; // closed class of each row, -1 if transient
+    std::vector<double> within;            // stationary probability within its class
+};
+
 struct ResultContent {
     ResultOrigin origin;
+    bool has_distribution = true; // false: per-class answer without a start
+    std::optional<ClassesRecord> classes;
     CertificateRecord certificate;
     std::vector<HistoryRecord> history;
     std::vector<DistributionSummary> variables;
@@ -66,7 +86,8 @@ struct ResultContent {
 // distribution entries of `rows`. Throws OutputError (and leaves nothing under
 // `path`) on any failure.
 void write_result_file(const std::string& path, MPI_Comm comm, const ResultContent& content,
-                       RowRange rows, std::uint64_t states, const std::vector<double>& local);
+                       RowRange rows, std::uint64_t states, const std::vector<double>& local,
+                       const LocalClassData* classes = nullptr);
 
 // Serial reader of the distribution (tests, later warm starts).
 std::vector<double> read_result_distribution(const std::string& path);

@@ -18,6 +18,8 @@ struct SolveOptions {
     std::string preconditioner = "amg";
     bool json = false;
     bool quiet = false;
+    std::optional<std::uint64_t> start_state;
+    std::optional<std::string> start_distribution;
 };
 
 int solve_command(MPI_Comm comm, SolveOptions& o) {
@@ -30,6 +32,12 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
                                : o.preconditioner == "lu" ? solve::LinearPreconditioner::lu
                                                           : solve::LinearPreconditioner::amg;
     o.request.progress = !o.quiet;
+    if ((o.start_state || o.start_distribution) && !o.request.per_class)
+        throw UsageError("--start and --start-distribution go with --per-class");
+    if (o.start_state && o.start_distribution)
+        throw UsageError("give either --start or --start-distribution, not both");
+    o.request.start_state = o.start_state;
+    o.request.start_distribution = o.start_distribution;
     const SolveReport report = run_solve(comm, o.request);
     if (comm_rank(comm) == 0) {
         if (o.json)
@@ -83,6 +91,15 @@ Action add_solve(CLI::App& app) {
     sub->add_flag("--no-analysis{false}", o->request.analyse_structure,
                   "skip the structure check (closed classes, period) that runs before solving; "
                   "for chains too large to gather on one rank (over 2^31 - 1 transitions)");
+    sub->add_flag("--per-class", o->request.per_class,
+                  "when the chain has several closed classes (or absorbing states), solve each "
+                  "class on its own instead of stopping with exit 3");
+    sub->add_option("--start", o->start_state,
+                    "with --per-class: the start state; adds the probability of ending in each "
+                    "class and the long-run distribution from that start (/distribution)");
+    sub->add_option("--start-distribution", o->start_distribution,
+                    "with --per-class: an HDF5 file whose /distribution dataset is the start "
+                    "distribution");
     sub->add_flag("--json", o->json, "print the report as one JSON object on stdout");
     sub->add_flag("-q,--quiet", o->quiet, "no progress lines on stderr");
     return [o](MPI_Comm comm) { return solve_command(comm, *o); };

@@ -60,6 +60,26 @@ nlohmann::json to_json(const SolveReport& r) {
                         {"min_entry", r.certificate.min_entry},
                         {"clipped_mass", r.certificate.clipped_mass},
                         {"norm_error", r.certificate.norm_error}};
+    if (!r.classes.empty()) {
+        nlohmann::json classes = nlohmann::json::array();
+        for (const auto& c : r.classes) {
+            nlohmann::json cj = {{"size", c.size},
+                                 {"method", c.method},
+                                 {"iterations", c.iterations},
+                                 {"residual", c.residual},
+                                 {"representatives", c.representatives}};
+            if (r.kind == io::ChainKind::dtmc)
+                cj["period"] = c.period;
+            if (c.probability)
+                cj["probability"] = *c.probability;
+            classes.push_back(cj);
+        }
+        j["classes"] = classes;
+        if (!r.start_description.empty())
+            j["start"] = {{"from", r.start_description},
+                          {"absorption_iterations", r.absorption_iterations},
+                          {"absorption_relative_residual", r.absorption_residual}};
+    }
     j["wall_seconds"] = r.wall_seconds;
     j["peak_memory_bytes_per_rank"] = r.peak_memory_bytes;
     nlohmann::json vars = nlohmann::json::array();
@@ -89,10 +109,34 @@ std::string to_text(const SolveReport& r) {
     std::string tried;
     for (const auto& a : r.attempts)
         tried += (tried.empty() ? "" : ", ") + a.method;
-    t += fmt::format("method       {} (tried: {})\n", r.method, tried);
+    t += tried.empty() ? fmt::format("method       {}\n", r.method)
+                       : fmt::format("method       {} (tried: {})\n", r.method, tried);
     t += fmt::format("iterations   {}\n", r.iterations);
-    t += fmt::format("certificate  {} = {:.2e} <= {:.1e}: certified\n", r.residual_definition,
-                     r.certificate.residual, r.tolerance);
+    if (!r.classes.empty()) {
+        t += fmt::format("classes      {} closed classes, each solved on its own{}\n",
+                         r.classes.size(),
+                         r.start_description.empty() ? "" : "; start: " + r.start_description);
+        for (std::size_t k = 0; k < r.classes.size() && k < 20; ++k) {
+            const auto& c = r.classes[k];
+            t += fmt::format("  class {}: {} state{}{}", k + 1, c.size, c.size == 1 ? "" : "s",
+                             c.size == 1 ? " (absorbing)"
+                                         : fmt::format(", residual {:.1e}", c.residual));
+            if (c.probability)
+                t += fmt::format(", probability of ending here {:.6g}", *c.probability);
+            t += fmt::format(", e.g. {}\n", c.representatives.front());
+        }
+        if (r.classes.size() > 20)
+            t += fmt::format("  ... and {} more (see --json or the result file)\n",
+                             r.classes.size() - 20);
+    }
+    if (r.has_distribution)
+        t += fmt::format("certificate  {} = {:.2e} <= {:.1e}: certified{}\n", r.residual_definition,
+                         r.certificate.residual, r.tolerance,
+                         r.classes.empty() ? "" : " (the mixture, against the whole chain)");
+    else
+        t += fmt::format("certificate  every class within {:.1e} (largest {:.2e}); no start "
+                         "given, so no single long-run distribution\n",
+                         r.tolerance, r.certificate.residual);
     if (r.certificate.clipped_mass > 0)
         t += fmt::format(
             "             {:.2e} of negative rounding mass clipped (min entry {:.2e})\n",

@@ -1,7 +1,9 @@
 #include "solve_pipeline.hpp"
 
+#include "io/hdf5.hpp"
 #include "load.hpp"
 #include "solve/assemble.hpp"
+#include "solve/per_class.hpp"
 #include "structure_report.hpp"
 
 #include <fmt/format.h>
@@ -10,6 +12,7 @@
 #include <sys/stat.h>
 
 #include <chrono>
+#include <cmath>
 
 #ifndef LONGRUN_VERSION
 #define LONGRUN_VERSION "dev"
@@ -63,6 +66,19 @@ io::ResultContent result_content(const SolveReport& r, const std::string& chain_
     cert.ranks = r.ranks;
     cert.converged = r.certificate.meets(r.tolerance);
     cert.residual_definition = r.residual_definition;
+    c.has_distribution = r.has_distribution;
+    if (!r.classes.empty()) {
+        io::ClassesRecord rec;
+        for (const auto& k : r.classes) {
+            rec.sizes.push_back(k.size);
+            rec.periods.push_back(k.period);
+            rec.residuals.push_back(k.residual);
+            if (k.probability)
+                rec.absorption.push_back(*k.probability);
+        }
+        rec.start = r.start_description;
+        c.classes = rec;
+    }
     int index = 1;
     for (const auto& a : r.attempts)
         c.history.push_back({fmt::format("{}-{}", index++, a.method), a.history});
@@ -82,6 +98,157 @@ io::ResultContent result_content(const SolveReport& r, const std::string& chain_
         c.variables.push_back(std::move(s));
     }
     return c;
+}
+
+Error uncertified(const SolveRequest& request, const SolveReport& report,
+                  const std::vector<solve::AttemptRecord>& attempts, const std::string& what = "") {
+    std::string why;
+    for (const auto& at : attempts)
+        why += (why.empty() ? "" : "; ") + at.method + " " + at.outcome;
+    Error failure(ExitCode::numerical,
+                  fmt::format("{}: no method reached the certificate {} <= {:.1e}{} ({})",
+                              request.chain_path, report.residual_definition, request.tolerance,
+                              what, why));
+    // The certificate is a global reduction, so every rank throws this same error;
+    // unagreed, the front end would print it once per rank and abort the job.
+    failure.mark_agreed();
+    return failure;
+}
+
+// This rank's part of the start distribution (full chain order).
+std::vector<double> start_vector(MPI_Comm comm, const SolveRequest& request, const io::Chain& chain,
+                                 std::string& description) {
+    std::vector<double> start(chain.local_rows(), 0.0);
+    if (request.start_state) {
+        const auto s = *request.start_state;
+        if (s >= chain.states) {
+            Error e(ExitCode::usage, fmt::format("--start {} is not a state of {} (0..{})", s,
+                                                 request.chain_path, chain.states - 1));
+            e.mark_agreed();
+            throw e;
+        }
+        if (chain.rows.contains(s))
+            start[s - chain.rows.begin] = 1.0;
+        description = fmt::format("state {}", s);
+        return start;
+    }
+    const std::string& file = *request.start_distribution;
+    std::optional<LocalFault> fault;
+    try {
+        h5::Handle f = h5::open_for_reading(file, std::nullopt);
+        h5::Handle d = h5::open_dataset(f, "/distribution", file);
+        const auto n = h5::length_1d(d, file, "/distribution");
+        if (n != chain.states)
+            h5::fail(
+                h5::Side::reading, file,
+                fmt::format("/distribution has {} entries, the chain {} states", n, chain.states));
+        start = h5::read_range<double>(d, chain.rows.begin, chain.rows.size(), h5::Access::serial,
+                                       file, "/distribution");
+        for (std::size_t i = 0; i < start.size(); ++i)
+            if (!(start[i] >= 0) || !std::isfinite(start[i]))
+                h5::fail(h5::Side::reading, file,
+                         fmt::format("/distribution: row {}: {} is not a probability",
+                                     chain.rows.begin + i, start[i]));
+    } catch (const Error& e) {
+        fault = LocalFault{chain.rows.begin, e.code(), e.what()};
+    }
+    agree_or_throw(comm, fault);
+    double mine = 0, total = 0;
+    for (double x : start)
+        mine += x;
+    MPI_Allreduce(&mine, &total, 1, MPI_DOUBLE, MPI_SUM, comm);
+    if (std::abs(total - 1.0) > 1e-8) {
+        Error e(ExitCode::bad_input,
+                fmt::format("{}: /distribution sums to {}, not 1", file, total));
+        e.mark_agreed();
+        throw e;
+    }
+    description = "distribution from " + file;
+    return start;
+}
+
+void solve_per_class(MPI_Comm comm, const SolveRequest& request, const io::Chain& chain,
+                     const solve::LocalRows& rows, const solve::TransposedChain& a,
+                     const solve::MethodSettings& settings, SolveReport& report,
+                     io::LocalClassData& class_data) {
+    const auto& structure = *report.structure;
+    const auto& class_of = structure.class_of;
+    const auto position = solve::positions_within_classes(class_of);
+    const std::size_t classes = structure.closed.size();
+    class_data.class_index.assign(chain.local_rows(), -1);
+    class_data.within.assign(chain.local_rows(), 0.0);
+    for (std::size_t i = 0; i < chain.local_rows(); ++i) {
+        const auto k = class_of[chain.rows.begin + i];
+        if (k != solve::transient_class)
+            class_data.class_index[i] = k;
+    }
+    for (std::size_t k = 0; k < classes; ++k) {
+        const auto& closed = structure.closed[k];
+        ClassOutcome outcome;
+        outcome.size = closed.size;
+        outcome.period = closed.period;
+        outcome.representatives = describe_states(comm, chain, closed.representatives);
+        if (closed.size == 1) {
+            // An absorbing state: its law is the point mass, exactly.
+            outcome.method = "exact";
+            const auto v = closed.representatives.front();
+            if (chain.rows.contains(v))
+                class_data.within[v - chain.rows.begin] = 1.0;
+            report.classes.push_back(std::move(outcome));
+            continue;
+        }
+        const solve::ClassChain sub =
+            solve::restrict_to_class(comm, rows, class_of, position, static_cast<std::uint32_t>(k));
+        const solve::TransposedChain sub_a = solve::assemble_transposed(comm, sub.rows());
+        settings.progress->note(fmt::format("class {}: {} states", k + 1, closed.size));
+        solve::SolveOutcome result = solve::solve_stationary(sub_a, request.method, settings);
+        if (!result.met)
+            throw uncertified(request, report, result.attempts,
+                              fmt::format(" for closed class {}", k + 1));
+        const auto local = local_entries(result.pi);
+        for (std::size_t i = 0; i < sub.local_states.size(); ++i)
+            class_data.within[sub.local_states[i] - chain.rows.begin] = local[i];
+        outcome.method = result.method;
+        outcome.iterations = result.iterations;
+        outcome.residual = result.certificate.residual;
+        report.iterations += result.iterations;
+        report.attempts.insert(report.attempts.end(), result.attempts.begin(),
+                               result.attempts.end());
+        report.classes.push_back(std::move(outcome));
+    }
+    report.method = "per-class";
+    if (!request.start_state && !request.start_distribution) {
+        report.has_distribution = false;
+        report.certificate.valid = true;
+        for (const auto& c : report.classes)
+            report.certificate.residual = std::max(report.certificate.residual, c.residual);
+        return;
+    }
+    const auto start = start_vector(comm, request, chain, report.start_description);
+    const solve::Absorption absorption =
+        solve::absorption_probabilities(comm, a, rows, class_of, classes, start, settings);
+    report.absorption_iterations = absorption.iterations;
+    report.absorption_residual = absorption.residual;
+    for (std::size_t k = 0; k < classes; ++k)
+        report.classes[k].probability = absorption.probability[k];
+    // The mixture is stationary for the whole chain (each class's law is): certify
+    // it against the full matrix like any other answer.
+    report.local_pi.assign(chain.local_rows(), 0.0);
+    for (std::size_t i = 0; i < chain.local_rows(); ++i)
+        if (class_data.class_index[i] >= 0)
+            report.local_pi[i] =
+                absorption.probability[class_data.class_index[i]] * class_data.within[i];
+    solve::VecHandle x = solve::create_state_vector(a);
+    {
+        PetscScalar* xv = nullptr;
+        solve::check(VecGetArray(x, &xv), "VecGetArray");
+        std::copy(report.local_pi.begin(), report.local_pi.end(), xv);
+        solve::check(VecRestoreArray(x, &xv), "VecRestoreArray");
+    }
+    report.certificate = solve::certify(a, x);
+    if (!report.certificate.meets(request.tolerance))
+        throw uncertified(request, report, report.attempts, " for the mixture");
+    report.local_pi = local_entries(x);
 }
 
 } // namespace
@@ -117,14 +284,15 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
 
     const solve::LocalRows rows = local_rows_of(chain);
     if (request.analyse_structure) {
-        report.structure = analysis::analyse(comm, rows);
+        report.structure = analysis::analyse(comm, rows, request.per_class);
         const StructureWords words = describe_structure(comm, chain, *report.structure);
         report.structure_verdict = words.verdict;
-        if (!report.structure->unique()) {
+        if (!report.structure->unique() && !request.per_class) {
             // Every rank holds the same structure, so every rank throws this.
             Error e(ExitCode::no_unique,
-                    fmt::format("{}: {} (details: longrun check {})", request.chain_path,
-                                words.verdict, request.chain_path));
+                    fmt::format("{}: {} (details: longrun check {}; --per-class solves each "
+                                "class, --start STATE also gives the mixture)",
+                                request.chain_path, words.verdict, request.chain_path));
             e.mark_agreed();
             throw e;
         }
@@ -137,35 +305,34 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     settings.tolerance = request.tolerance;
     settings.preconditioner = request.preconditioner;
     settings.progress = &progress;
-    solve::SolveOutcome outcome = solve::solve_stationary(a, request.method, settings);
-    report.attempts = outcome.attempts;
-    report.method = outcome.method;
-    report.iterations = outcome.iterations;
-    report.certificate = outcome.certificate;
-    if (!outcome.met) {
-        std::string why;
-        for (const auto& at : outcome.attempts)
-            why += (why.empty() ? "" : "; ") + at.method + " " + at.outcome;
-        NumericalError failure(
-            fmt::format("{}: no method reached the certificate {} <= {:.1e} ({})",
-                        request.chain_path, report.residual_definition, request.tolerance, why));
-        // The certificate is a global reduction, so every rank throws this same error;
-        // unagreed, the front end would print it once per rank and abort the job.
-        failure.mark_agreed();
-        throw failure;
-    }
-    report.local_pi = local_entries(outcome.pi);
 
-    for (const auto& v : chain.variables)
-        report.variables.push_back(
-            summary::marginal(comm, v.name, v.integral, v.values, report.local_pi));
+    const bool several = report.structure && !report.structure->unique();
+    io::LocalClassData class_data;
+    if (several) {
+        solve_per_class(comm, request, chain, rows, a, settings, report, class_data);
+    } else {
+        solve::SolveOutcome outcome = solve::solve_stationary(a, request.method, settings);
+        report.attempts = outcome.attempts;
+        report.method = outcome.method;
+        report.iterations = outcome.iterations;
+        report.certificate = outcome.certificate;
+        if (!outcome.met)
+            throw uncertified(request, report, outcome.attempts);
+        report.local_pi = local_entries(outcome.pi);
+    }
+
+    if (report.has_distribution)
+        for (const auto& v : chain.variables)
+            report.variables.push_back(
+                summary::marginal(comm, v.name, v.integral, v.values, report.local_pi));
 
     report.wall_seconds =
         std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
     report.peak_memory_bytes = peak_memory_bytes(comm);
     if (request.output) {
         io::write_result_file(*request.output, comm, result_content(report, request.chain_path),
-                              chain.rows, chain.states, report.local_pi);
+                              chain.rows, chain.states, report.local_pi,
+                              several ? &class_data : nullptr);
         report.output = request.output;
     }
     return report;

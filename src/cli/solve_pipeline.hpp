@@ -28,6 +28,22 @@ struct SolveRequest {
     bool progress = true;
     std::optional<RowRange> forced_rows; // tests: override the partition
     bool analyse_structure = true;       // off only for chains too large to gather
+    // Several closed classes: solve each on its own instead of stopping (exit 3).
+    bool per_class = false;
+    // With per_class: where the chain starts, for the absorption probabilities and
+    // the long-run mixture. One state, or a file with a /distribution dataset.
+    std::optional<std::uint64_t> start_state;
+    std::optional<std::string> start_distribution;
+};
+
+struct ClassOutcome {
+    std::uint64_t size = 0;
+    std::uint64_t period = 0;
+    std::vector<std::string> representatives; // described with variable values
+    std::string method;
+    long iterations = 0;
+    double residual = 0;
+    std::optional<double> probability; // of ending in this class, given a start
 };
 
 struct SolveReport {
@@ -38,6 +54,11 @@ struct SolveReport {
     io::ValidationReport validation;
     std::optional<analysis::Structure> structure;
     std::string structure_verdict;
+    std::vector<ClassOutcome> classes; // per-class solve only
+    std::string start_description;     // per-class solve with a start
+    long absorption_iterations = 0;
+    double absorption_residual = 0;
+    bool has_distribution = true; // false: per-class without a start
     std::vector<solve::AttemptRecord> attempts;
     std::string method;
     long iterations = 0;
