@@ -96,6 +96,10 @@ void write_result_file(const std::string& path, MPI_Comm comm, const ResultConte
                 h5::write_attribute(g, "q90", v.q90, file);
                 h5::write_attribute(g, "q99", v.q99, file);
                 h5::write_attribute(g, "q999", v.q999, file);
+                if (v.mass_at_lower)
+                    h5::write_attribute(g, "mass_at_lower_bound", *v.mass_at_lower, file);
+                if (v.mass_at_upper)
+                    h5::write_attribute(g, "mass_at_upper_bound", *v.mass_at_upper, file);
             }
         }
         if (f.close() < 0)

@@ -54,6 +54,7 @@ struct DistributionSummary {
     std::vector<double> pmf;    // P(X = values[i])
     std::vector<double> tail;   // P(X >= values[i])
     double mean = 0, std = 0, q50 = 0, q90 = 0, q99 = 0, q999 = 0;
+    std::optional<double> mass_at_lower, mass_at_upper; // at declared bounds
 };
 
 // Several closed classes (solve --per-class): per class its size, period, how

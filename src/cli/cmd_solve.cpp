@@ -100,6 +100,11 @@ Action add_solve(CLI::App& app) {
     sub->add_option("--start-distribution", o->start_distribution,
                     "with --per-class: an HDF5 file whose /distribution dataset is the start "
                     "distribution");
+    sub->add_option("--truncation-warn", o->request.truncation_threshold,
+                    "warn when the probability at a state variable's declared bound exceeds "
+                    "this (a sign that the bound cuts off real mass)")
+        ->default_val(1e-6)
+        ->check(CLI::PositiveNumber);
     sub->add_flag("--json", o->json, "print the report as one JSON object on stdout");
     sub->add_flag("-q,--quiet", o->quiet, "no progress lines on stderr");
     return [o](MPI_Comm comm) { return solve_command(comm, *o); };

@@ -95,6 +95,14 @@ nlohmann::json to_json(const SolveReport& r) {
              {"tail", tail}});
     }
     j["variables"] = vars;
+    nlohmann::json cuts = nlohmann::json::array();
+    for (const auto& t : r.truncation)
+        cuts.push_back({{"variable", t.variable},
+                        {"bound", t.upper ? "upper" : "lower"},
+                        {"value", t.bound},
+                        {"probability", t.mass},
+                        {"warning", t.warn}});
+    j["truncation"] = {{"threshold", r.truncation_threshold}, {"bounds", cuts}};
     j["output"] = r.output ? nlohmann::json(*r.output) : nlohmann::json(nullptr);
     return j;
 }
@@ -160,6 +168,14 @@ std::string to_text(const SolveReport& r) {
                              number(m.q99, m.integral), number(m.q999, m.integral), tail);
         }
     }
+    std::string cuts;
+    for (const auto& c : r.truncation)
+        if (c.upper || c.warn)
+            cuts += fmt::format("{}P({}={})={:.2e}{}", cuts.empty() ? "" : "  ", c.variable,
+                                number(c.bound, true), c.mass, c.warn ? " (!)" : "");
+    if (!cuts.empty())
+        t += fmt::format("\nat bounds    {}   (warning above {:.0e})\n", cuts,
+                         r.truncation_threshold);
     return t;
 }
 

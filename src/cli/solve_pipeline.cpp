@@ -95,6 +95,9 @@ io::ResultContent result_content(const SolveReport& r, const std::string& chain_
         s.q90 = m.q90;
         s.q99 = m.q99;
         s.q999 = m.q999;
+        for (const auto& note : r.truncation)
+            if (note.variable == m.name)
+                (note.upper ? s.mass_at_upper : s.mass_at_lower) = note.mass;
         c.variables.push_back(std::move(s));
     }
     return c;
@@ -251,6 +254,27 @@ void solve_per_class(MPI_Comm comm, const SolveRequest& request, const io::Chain
     report.local_pi = local_entries(x);
 }
 
+// A lower bound of 0 on an integer variable is taken as natural (an empty queue,
+// no busy servers), not as a cut: its mass is reported but never warned about.
+void check_truncation(const io::StateVariable& v, const summary::Marginal& m, double threshold,
+                      SolveReport& report) {
+    auto mass_at = [&](double value) {
+        for (std::size_t i = 0; i < m.values.size(); ++i)
+            if (m.values[i] == value)
+                return m.pmf[i];
+        return 0.0;
+    };
+    if (v.lower) {
+        const double mass = mass_at(*v.lower);
+        const bool natural = v.integral && *v.lower == 0;
+        report.truncation.push_back({v.name, false, *v.lower, mass, !natural && mass > threshold});
+    }
+    if (v.upper) {
+        const double mass = mass_at(*v.upper);
+        report.truncation.push_back({v.name, true, *v.upper, mass, mass > threshold});
+    }
+}
+
 } // namespace
 
 SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
@@ -322,9 +346,19 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     }
 
     if (report.has_distribution)
-        for (const auto& v : chain.variables)
+        for (const auto& v : chain.variables) {
             report.variables.push_back(
                 summary::marginal(comm, v.name, v.integral, v.values, report.local_pi));
+            check_truncation(v, report.variables.back(), request.truncation_threshold, report);
+        }
+    report.truncation_threshold = request.truncation_threshold;
+    for (const auto& note : report.truncation)
+        if (note.warn)
+            progress.warn(fmt::format(
+                "P({} = {}) = {:.2e} at its declared {} bound exceeds {:.0e}: the truncation may "
+                "bias the results; widen the bound and solve again",
+                note.variable, note.bound, note.mass, note.upper ? "upper" : "lower",
+                request.truncation_threshold));
 
     report.wall_seconds =
         std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();

@@ -34,6 +34,18 @@ struct SolveRequest {
     // the long-run mixture. One state, or a file with a /distribution dataset.
     std::optional<std::uint64_t> start_state;
     std::optional<std::string> start_distribution;
+    // Mass at a declared bound above this is reported as a possible truncation bias.
+    double truncation_threshold = 1e-6;
+};
+
+// Probability at a state variable's declared bound: large mass at the bound where
+// the state space was cut off means the cut biases the answer.
+struct TruncationNote {
+    std::string variable;
+    bool upper = true;
+    double bound = 0;
+    double mass = 0;
+    bool warn = false;
 };
 
 struct ClassOutcome {
@@ -68,6 +80,8 @@ struct SolveReport {
     double wall_seconds = 0;
     std::uint64_t peak_memory_bytes = 0;
     std::vector<summary::Marginal> variables;
+    std::vector<TruncationNote> truncation;
+    double truncation_threshold = 0;
     std::optional<std::string> output;
     RowRange rows;                // this rank's rows
     std::vector<double> local_pi; // this rank's entries of the distribution

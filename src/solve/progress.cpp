@@ -12,6 +12,7 @@ Progress::Progress(MPI_Comm comm, bool enabled, double batch_interval_seconds) {
     int rank = 0;
     MPI_Comm_rank(comm, &rank);
     enabled_ = enabled && rank == 0;
+    root_ = rank == 0;
     terminal_ = ::isatty(STDERR_FILENO) != 0;
     interval_ = terminal_ ? 1.0 : batch_interval_seconds;
     start_ = phase_start_ = last_print_ = Clock::now();
@@ -53,6 +54,17 @@ void Progress::note(const std::string& line) {
     if (!enabled_)
         return;
     std::fprintf(stderr, "  %s\n", line.c_str());
+    std::fflush(stderr);
+}
+
+} // namespace longrun::solve
+
+namespace longrun::solve {
+
+void Progress::warn(const std::string& line) {
+    if (!root_)
+        return;
+    std::fprintf(stderr, "longrun: warning: %s\n", line.c_str());
     std::fflush(stderr);
 }
 

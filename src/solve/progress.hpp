@@ -19,11 +19,14 @@ class Progress {
     void update(long iteration, double residual);
     // Prints a line of its own, regardless of timing (rank 0 only).
     void note(const std::string& line);
+    // Printed even with progress lines off (rank 0 only): something the user must see.
+    void warn(const std::string& line);
     double elapsed_seconds() const;
 
   private:
     using Clock = std::chrono::steady_clock;
     bool enabled_ = false;
+    bool root_ = false;
     bool terminal_ = false;
     double interval_ = 1.0;
     std::string phase_;

@@ -165,3 +165,29 @@ TEST_F(Partitions, FirstRankWithoutRowsWorksToo) {
 
 } // namespace
 } // namespace longrun
+
+namespace longrun {
+namespace {
+
+class Truncation : public testing_support::MpiTest {};
+
+TEST_F(Truncation, MassAtTheUpperBoundOfAnMM1KIsTheClosedFormAndWarnsOnlyWhenLarge) {
+    // P(N = K) for M/M/1/K is (1 - rho) rho^K / (1 - rho^(K+1)) (Gross & Harris).
+    for (const auto& [K, rho, warn] : {std::tuple{12, 0.8, true}, std::tuple{80, 0.5, false}}) {
+        const auto path =
+            write(testing_support::birth_death(1, K, rho, 1.0), "cut" + std::to_string(K) + ".h5");
+        const auto report = solve(path, "auto", 1e-13);
+        const double expected = (1 - rho) * std::pow(rho, K) / (1 - std::pow(rho, K + 1));
+        ASSERT_EQ(report.truncation.size(), 2u); // lower and upper bound of n
+        const auto& lower = report.truncation[0];
+        const auto& upper = report.truncation[1];
+        EXPECT_FALSE(lower.upper);
+        EXPECT_FALSE(lower.warn) << "a lower bound of 0 is natural, not a cut";
+        EXPECT_TRUE(upper.upper);
+        EXPECT_NEAR(upper.mass, expected, 1e-12 + 1e-9 * expected);
+        EXPECT_EQ(upper.warn, warn) << "K = " << K;
+    }
+}
+
+} // namespace
+} // namespace longrun
