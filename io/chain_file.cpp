@@ -22,6 +22,8 @@ std::vector<std::string> group_members(hid_t group) {
     return names;
 }
 
+// Also requires every element to be stored: buffers are sized by these lengths,
+// so a length the file merely announces must not get that far.
 void require_length(hid_t d, const std::string& file, const std::string& name,
                     std::uint64_t expected, const std::string& why) {
     const auto n = h5::length_1d(d, file, name);
@@ -29,6 +31,9 @@ void require_length(hid_t d, const std::string& file, const std::string& name,
         h5::fail(h5::Side::reading, file,
                  name + ": has " + std::to_string(n) + " elements, expected " +
                      std::to_string(expected) + " (" + why + ")");
+    if (const auto missing = h5::missing_storage(d))
+        h5::fail(h5::Side::reading, file,
+                 name + ": claims " + std::to_string(n) + " elements but " + *missing);
 }
 
 void require_class(hid_t d, const std::string& file, const std::string& name,
@@ -40,6 +45,29 @@ void require_class(hid_t d, const std::string& file, const std::string& name,
 
 std::string row_prefix(const std::string& file, const std::string& dataset, std::uint64_t row) {
     return file + ": " + dataset + ": row " + std::to_string(row) + ": ";
+}
+
+// HDF5 turns a negative value of a signed dataset into 0 when it is read as
+// unsigned, so a target of -1 would quietly become state 0. Signed data is read
+// as int64 instead (exact for every width) into the same storage, where a set
+// top bit marks a negative value. Returns the position of the first one.
+std::optional<std::uint64_t> read_nonnegative(hid_t d, std::uint64_t offset, std::uint64_t count,
+                                              std::uint64_t* out, const std::string& file,
+                                              const std::string& name,
+                                              h5::Access access = h5::Access::collective) {
+    const bool is_signed = h5::numeric_class(d) == h5::Numeric::signed_integer;
+    h5::read_range(d, is_signed ? H5T_NATIVE_INT64 : H5T_NATIVE_UINT64, offset, count, out, access,
+                   file, name);
+    if (is_signed)
+        for (std::uint64_t i = 0; i < count; ++i)
+            if (out[i] >> 63)
+                return i;
+    return std::nullopt;
+}
+
+std::string negative_value(std::uint64_t bits, const std::string& what) {
+    return what + " " + std::to_string(static_cast<std::int64_t>(bits)) +
+           " is negative (the dataset is signed; it must hold values >= 0)";
 }
 
 } // namespace
@@ -218,9 +246,20 @@ std::vector<std::uint64_t> read_offsets(const ChainHeader& header, RowRange rows
     h5::Handle f = h5::open_for_reading(header.path, comm);
     h5::Handle d = h5::open_dataset(f, "/chain/offsets", header.path);
     try {
-        // Every rank calls the collective read, also those with no rows.
-        offsets = h5::read_range<std::uint64_t>(
-            d, rows.begin, rows.size() + 1, h5::Access::collective, header.path, "/chain/offsets");
+        // Independent, not collective: the ranges overlap (each ends where the next
+        // begins), and Open MPI 4.1's own MPI-IO layer (OMPIO) returns wrong values
+        // to a rank whose range starts where a lower rank's one-element range does
+        // (a rank with no rows just before it), e.g. offsets 1 0 4 for 1 4 5.
+        // One contiguous block per rank gains nothing from collective buffering.
+        offsets.resize(rows.size() + 1);
+        if (const auto at = read_nonnegative(d, rows.begin, offsets.size(), offsets.data(),
+                                             header.path, "/chain/offsets", h5::Access::serial)) {
+            // The last offset ends the last row rather than starting a row of its own.
+            const auto row = std::min(rows.begin + *at, header.states - 1);
+            fault = LocalFault{row, ExitCode::bad_input,
+                               row_prefix(header.path, "/chain/offsets", row) +
+                                   negative_value(offsets[*at], "offset")};
+        }
     } catch (const Error& e) {
         fault = LocalFault{rows.begin, e.code(), e.what()};
     }
@@ -295,19 +334,32 @@ std::optional<LocalFault> validate_slice(Chain& c, const std::string& file,
                                   row_prefix(file, "/chain/events", row) + "event index " +
                                       std::to_string(c.events[k]) + " has no name (" +
                                       std::to_string(c.event_names.size()) + " event_names)"};
-            sum += w;
+            if (!(ctmc && t == row))
+                sum += w;
         }
+        // Finite rates can still add up to infinity, and the generator's diagonal
+        // (minus the total) with them: no solver can work with that row.
+        if (ctmc && !std::isfinite(sum))
+            return LocalFault{row, ExitCode::bad_input,
+                              row_prefix(file, "/chain/weights", row) +
+                                  "the rates out of the state add up to more than the largest "
+                                  "double (" +
+                                  fmt_double(std::numeric_limits<double>::max()) +
+                                  "); choose a longer time unit"};
         const double off = std::abs(sum - 1.0);
         const bool beyond_tolerance = !ctmc && off > options.row_sum_tolerance;
         if (beyond_tolerance) {
-            if (!options.renormalize || sum == 0)
+            // A sum that overflowed would rescale the row to zeros.
+            const bool rescalable = sum > 0 && std::isfinite(sum);
+            if (!options.renormalize || !rescalable)
                 return LocalFault{row, ExitCode::bad_input,
                                   row_prefix(file, "/chain/weights", row) +
                                       "probabilities sum to " + fmt_double(sum) +
                                       ", not 1 (tolerance " +
                                       fmt_double(options.row_sum_tolerance) +
-                                      (sum == 0 ? "; an empty row cannot be renormalized)"
-                                                : "; --renormalize rescales such rows)")};
+                                      (sum == 0      ? "; an empty row cannot be renormalized)"
+                                       : !rescalable ? "; too large to be renormalized)"
+                                                     : "; --renormalize rescales such rows)")};
             ++report.renormalized_rows;
             report.largest_correction = std::max(report.largest_correction, off);
         }
@@ -351,13 +403,20 @@ Chain read_chain_slice(const ChainHeader& h, RowRange rows, MPI_Comm comm,
 
     h5::Handle f = h5::open_for_reading(file, comm);
     std::optional<LocalFault> fault;
+    auto note = [&](LocalFault found) {
+        if (!fault || found.row < fault->row)
+            fault = std::move(found);
+    };
     auto guarded = [&](auto&& body) {
         try {
             body();
         } catch (const Error& e) {
-            if (!fault)
-                fault = LocalFault{rows.begin, e.code(), e.what()};
+            note(LocalFault{rows.begin, e.code(), e.what()});
         }
+    };
+    auto row_of_entry = [&](std::uint64_t k) {
+        const auto after = std::upper_bound(c.offsets.begin(), c.offsets.end(), k);
+        return rows.begin + static_cast<std::uint64_t>(after - c.offsets.begin()) - 1;
     };
     // Every rank performs every collective read in the same order, even after a
     // local failure, so that no rank is left waiting.
@@ -370,10 +429,49 @@ Chain read_chain_slice(const ChainHeader& h, RowRange rows, MPI_Comm comm,
                            file, name);
         });
     };
-    read_all("/chain/targets", c.targets, first, count);
+    {
+        h5::Handle d = h5::open_dataset(f, "/chain/targets", file);
+        c.targets.assign(count, 0);
+        guarded([&] {
+            if (const auto k =
+                    read_nonnegative(d, first, count, c.targets.data(), file, "/chain/targets"))
+                note(LocalFault{row_of_entry(*k), ExitCode::bad_input,
+                                row_prefix(file, "/chain/targets", row_of_entry(*k)) +
+                                    negative_value(c.targets[*k], "target")});
+        });
+    }
     read_all("/chain/weights", c.weights, first, count);
-    if (h.has_events)
-        read_all("/chain/events", c.events, first, count);
+    if (h.has_events) {
+        h5::Handle d = h5::open_dataset(f, "/chain/events", file);
+        const bool fits = h5::numeric_class(d) == h5::Numeric::unsigned_integer &&
+                          h5::element_size(d) <= sizeof(std::uint16_t);
+        if (fits) {
+            read_all("/chain/events", c.events, first, count);
+        } else {
+            // Labels are 16 bits in memory, and HDF5 would clamp a wider value into
+            // that range (70000 becoming 65535, a label that may well exist).
+            std::vector<std::uint64_t> wide(count);
+            guarded([&] {
+                if (const auto k =
+                        read_nonnegative(d, first, count, wide.data(), file, "/chain/events"))
+                    note(LocalFault{row_of_entry(*k), ExitCode::bad_input,
+                                    row_prefix(file, "/chain/events", row_of_entry(*k)) +
+                                        negative_value(wide[*k], "event index")});
+            });
+            c.events.assign(count, 0);
+            for (std::uint64_t k = 0; k < count; ++k) {
+                constexpr std::uint64_t largest = std::numeric_limits<std::uint16_t>::max();
+                if (wide[k] > largest) { // a negative one was noted above, at this row or before
+                    note(LocalFault{row_of_entry(k), ExitCode::bad_input,
+                                    row_prefix(file, "/chain/events", row_of_entry(k)) +
+                                        "event index " + std::to_string(wide[k]) + " is beyond " +
+                                        std::to_string(largest) + ", the largest event label"});
+                    break;
+                }
+                c.events[k] = static_cast<std::uint16_t>(wide[k]);
+            }
+        }
+    }
     for (const auto& spec : h.variables) {
         StateVariable v = spec;
         read_all("/states/" + spec.name, v.values, rows.begin, rows.size());

@@ -77,6 +77,14 @@ std::uint64_t length_1d(hid_t dataset, const std::string& file, const std::strin
 
 enum class Numeric { unsigned_integer, signed_integer, floating, other };
 Numeric numeric_class(hid_t dataset);
+// Bytes per element as stored in the file.
+std::size_t element_size(hid_t dataset);
+
+// Chunks that were never written read back as the fill value, so a file of a
+// few KiB can announce an array of 2^40 elements. Returns what is missing
+// (e.g. "holds 1 of its 1073741825 chunks"), or nothing when every element is
+// stored in the file.
+std::optional<std::string> missing_storage(hid_t dataset);
 
 // Attributes.
 bool has_attribute(hid_t loc, const std::string& name);

@@ -78,13 +78,14 @@ std::string lower(std::string_view s) {
     return out;
 }
 
-// File text shown in a one-line message: bounded length, no control bytes.
+// File text shown in a one-line message: bounded length, plain ASCII (bytes of
+// a binary file would otherwise reach the terminal or log as broken UTF-8).
 std::string clip(std::string_view s) {
     constexpr std::size_t limit = 40;
     std::string out;
     for (std::size_t i = 0; i < s.size() && i < limit; ++i) {
         const auto c = static_cast<unsigned char>(s[i]);
-        out += (c < 0x20 || c == 0x7f) ? '?' : static_cast<char>(c);
+        out += (c < 0x20 || c >= 0x7f) ? '?' : static_cast<char>(c);
     }
     if (s.size() > limit)
         out += "...";
@@ -124,7 +125,10 @@ using FilePtr = std::unique_ptr<std::FILE, FileCloser>;
 // 10^7-entry file cannot afford.
 class LineReader {
   public:
-    explicit LineReader(const std::string& path) : path_(path), buffer_(read_chunk) {
+    // Not zero-filled: fread overwrites what is used, and a small file then touches
+    // only the pages it fills instead of all 4 MiB.
+    explicit LineReader(const std::string& path)
+        : path_(path), buffer_(std::make_unique_for_overwrite<char[]>(read_chunk)) {
         file_.reset(std::fopen(path.c_str(), "rb"));
         if (!file_)
             throw InputError(path + ": cannot open: " + std::strerror(errno));
@@ -133,7 +137,7 @@ class LineReader {
     // False at the end of the file.
     bool next(std::string_view& line) {
         for (;;) {
-            const char* start = buffer_.data() + begin_;
+            const char* start = buffer_.get() + begin_;
             const auto* nl = static_cast<const char*>(std::memchr(start, '\n', end_ - begin_));
             if (nl) {
                 line = finish(start, static_cast<std::size_t>(nl - start));
@@ -169,7 +173,7 @@ class LineReader {
     std::string_view head() {
         if (end_ == 0 && !eof_)
             refill();
-        return {buffer_.data(), std::min<std::size_t>(end_, 8)};
+        return {buffer_.get(), std::min<std::size_t>(end_, 8)};
     }
 
   private:
@@ -188,12 +192,11 @@ class LineReader {
 
     void refill() {
         if (begin_ > 0) {
-            std::memmove(buffer_.data(), buffer_.data() + begin_, end_ - begin_);
+            std::memmove(buffer_.get(), buffer_.get() + begin_, end_ - begin_);
             end_ -= begin_;
             begin_ = 0;
         }
-        const std::size_t n =
-            std::fread(buffer_.data() + end_, 1, buffer_.size() - end_, file_.get());
+        const std::size_t n = std::fread(buffer_.get() + end_, 1, read_chunk - end_, file_.get());
         end_ += n;
         if (n == 0) {
             if (std::ferror(file_.get()))
@@ -204,7 +207,7 @@ class LineReader {
 
     std::string path_;
     FilePtr file_;
-    std::vector<char> buffer_;
+    std::unique_ptr<char[]> buffer_; // read_chunk bytes
     std::size_t begin_ = 0, end_ = 0, line_length_ = 0;
     bool eof_ = false;
     std::uint64_t number_ = 0;

@@ -14,8 +14,9 @@ packages=(
   openmpi-bin libopenmpi-dev libhdf5-openmpi-dev
   petsc-dev slepc-dev
   libcli11-dev nlohmann-json3-dev libfmt-dev libgtest-dev
+  libyaml-cpp-dev libmuparser-dev
   python3 python3-numpy python3-scipy python3-h5py
-  clang-format
+  clang-format clang-14 libclang-rt-14-dev
 )
 
 install_packages() {
@@ -57,7 +58,12 @@ run_demo() {
   mpirun -n 2 --oversubscribe "$build/src/longrun" solve jobs/demo/parcel-hub.h5 \
     -o "$out/hub-result-2ranks.h5" --quiet
   echo
-  echo "results: $out/hub-result.h5 and $out/hub-result-2ranks.h5 (open with h5dump or h5py)"
+  echo "== a model description: generate its chain, then solve it"
+  "$build/src/longrun" generate jobs/models/help-desk.yaml -o "$out/help-desk.h5"
+  "$build/src/longrun" solve "$out/help-desk.h5" -o "$out/help-desk-result.h5" --quiet
+  echo
+  echo "results: $out/hub-result.h5, $out/hub-result-2ranks.h5 and $out/help-desk-result.h5"
+  echo "(open with h5dump or h5py)"
 }
 
 check_format() {
@@ -66,6 +72,35 @@ check_format() {
   ((${#files[@]} == 0)) && return 0
   clang-format --dry-run --Werror "${files[@]}"
   echo "clang-format: ${#files[@]} files clean"
+}
+
+# The readers of untrusted bytes under libFuzzer for a short while, from the seed
+# corpora in tests/fuzz/corpus (copied: the fuzzer adds what it finds to the
+# folder it is given). Any crash, sanitizer report or broken invariant fails CI;
+# the input that caused it is left in $build-fuzz/artifacts/.
+run_fuzz() {
+  local fuzz="$build-fuzz"
+  CC=clang-14 CXX=clang++-14 cmake -S . -B "$fuzz" -DCMAKE_BUILD_TYPE=RelWithDebInfo \
+    -DLONGRUN_TESTS=OFF -DLONGRUN_FUZZ=ON
+  cmake --build "$fuzz" -j "$jobs" --target fuzz_matrix_market fuzz_chain_validate
+  mkdir -p "$fuzz/artifacts"
+  local target seconds work
+  # The Matrix Market reader is slow per input under the sanitizers (a 4 MiB
+  # read buffer per file), so it gets the longer share.
+  for target in fuzz_matrix_market:60 fuzz_chain_validate:30; do
+    seconds=${target#*:}
+    target=${target%%:*}
+    work=$(mktemp -d)
+    cp -r "tests/fuzz/corpus/$target/." "$work/"
+    echo "== $target for ${seconds} s"
+    "$fuzz/tests/fuzz/$target" "$work" -max_total_time="$seconds" -rss_limit_mb=2048 \
+      -timeout=10 -print_final_stats=1 -artifact_prefix="$fuzz/artifacts/$target-" ||
+      {
+        rm -rf "$work"
+        return 1
+      }
+    rm -rf "$work"
+  done
 }
 
 run_tests() {
@@ -78,6 +113,7 @@ run_tests() {
   # Open MPI keeps some memory until exit by design; leaks are not what this checks.
   ASAN_OPTIONS=detect_leaks=0:abort_on_error=1 UBSAN_OPTIONS=halt_on_error=1:print_stacktrace=1 \
     ctest --test-dir "$build-asan" --output-on-failure -L unit
+  run_fuzz
 }
 
 case "${1:-}" in

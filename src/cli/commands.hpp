@@ -13,5 +13,6 @@ using Action = std::function<int(MPI_Comm)>;
 Action add_convert(CLI::App& app);
 Action add_solve(CLI::App& app);
 Action add_check(CLI::App& app);
+Action add_generate(CLI::App& app);
 
 } // namespace longrun::cli

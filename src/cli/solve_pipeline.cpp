@@ -355,8 +355,9 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     for (const auto& note : report.truncation)
         if (note.warn)
             progress.warn(fmt::format(
-                "P({} = {}) = {:.2e} at its declared {} bound exceeds {:.0e}: the truncation may "
-                "bias the results; widen the bound and solve again",
+                "P({} = {}) = {:.2e} at its declared {} bound exceeds {:.0e}: if the bound cuts "
+                "off an unbounded quantity, the results are biased (widen it and solve again); a "
+                "real capacity needs no action",
                 note.variable, note.bound, note.mass, note.upper ? "upper" : "lower",
                 request.truncation_threshold));
 

@@ -106,8 +106,8 @@ StructureWords describe_structure(MPI_Comm comm, const io::Chain& slice,
     if (s.unique()) {
         w.verdict = "a unique stationary distribution exists" + periodic;
         if (s.transient > 0)
-            w.verdict += fmt::format("; {} transient state{} get probability 0", s.transient,
-                                     s.transient == 1 ? "" : "s");
+            w.verdict += fmt::format("; {} transient state{} probability 0", s.transient,
+                                     s.transient == 1 ? " gets" : "s get");
     } else {
         std::string which;
         for (std::size_t k = 0; k < s.closed.size() && k < 3; ++k) {

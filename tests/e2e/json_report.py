@@ -70,7 +70,9 @@ def main(argv):
     out.unlink(missing_ok=True)
     quiet = run(["solve", chain, "--json", "-q", "--tol", repr(TOL), "-o", str(out)], **launch)
     report = parse(quiet, "--json -q")
-    check(quiet.stderr == "", f"--json -q: stderr is not empty: {quiet.stderr[:400]!r}")
+    # -q silences progress, never warnings (this tandem's bounds do hold mass).
+    noise = [l for l in quiet.stderr.splitlines() if not l.startswith("longrun: warning: ")]
+    check(noise == [], f"--json -q: stderr has more than warnings: {quiet.stderr[:400]!r}")
     if report is not None:
         check_report(report, "--json -q", chain, ranks, expect)
         check(report.get("output") == str(out), f"output {report.get('output')!r}")
