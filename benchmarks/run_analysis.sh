@@ -79,23 +79,33 @@ records="$work/records.tsv"
 : > "$records"
 failures=0
 
+# Clock ticks all cores spent busy (user, nice, system, irq, softirq) since boot.
+busy_ticks() {
+    local _cpu user nice system _idle _iowait irq softirq _rest
+    read -r _cpu user nice system _idle _iowait irq softirq _rest < /proc/stat
+    echo "$((user + nice + system + irq + softirq))"
+}
+
 # run_timed ID CHAIN RANKS -- COMMAND...: stdout to WORK/ID.json, stderr to
 # WORK/ID.err; appends one record. Never fails: a failed run is recorded.
 run_timed() {
     local id="$1" chain="$2" ranks="$3"
     shift 4
-    local start end rc=0
+    local start end busy_before busy_after rc=0
     echo "[$(date +%T)] $id: $*" >&2
+    busy_before="$(busy_ticks)"
     start="$(date +%s.%N)"
     /usr/bin/time -v -o "$work/$id.time" timeout "$limit" "$@" \
         > "$work/$id.json" 2> "$work/$id.err" || rc=$?
     end="$(date +%s.%N)"
+    busy_after="$(busy_ticks)"
     if [[ "$rc" -ne 0 && "$rc" -ne 3 ]]; then # 3: no unique distribution, still a result
         failures=$((failures + 1))
         echo "[$(date +%T)] $id failed with exit status $rc; last lines of its stderr:" >&2
         tail -n 5 "$work/$id.err" >&2 || true
     fi
-    printf '%s\t%s\t%s\t%s\t%s\t%s\n' "$id" "$chain" "$ranks" "$rc" "$start" "$end" >> "$records"
+    printf '%s\t%s\t%s\t%s\t%s\t%s\t%s\n' "$id" "$chain" "$ranks" "$rc" "$start" "$end" \
+        "$((busy_after - busy_before))" >> "$records"
 }
 
 echo "work folder: $work" >&2
@@ -120,25 +130,34 @@ done
     echo "memory (free -g), commit $commit, OMP_NUM_THREADS=1, per-run timeout ${limit} s."
     echo "Command: LONGRUN_ANALYSIS_CHAINS=\"$chains\" $invocation"
     echo
-    "$python" - "$records" "$work" << 'PY'
+    "$python" - "$records" "$work" "$(getconf CLK_TCK)" << 'PY'
 import json
 import re
 import sys
 
-records_path, work = sys.argv[1], sys.argv[2]
-print("| chain | step | ranks | exit | whole command s | max RSS MiB | states | transitions "
-      "| SCCs | closed classes | transient | within 30 s |")
-print("|---|---|---:|---:|---:|---:|---:|---:|---:|---:|---:|---|")
+records_path, work, ticks = sys.argv[1], sys.argv[2], int(sys.argv[3])
+print("| chain | step | ranks | exit | whole command s | CPU s: user / sys / others "
+      "| max RSS MiB | states | transitions | SCCs | closed classes | transient | within 30 s |")
+print("|---|---|---:|---:|---:|---|---:|---:|---:|---:|---:|---:|---|")
 with open(records_path) as f:
     for line in f:
-        rid, chain, ranks, rc, start, end = line.rstrip("\n").split("\t")
+        rid, chain, ranks, rc, start, end, busy = line.rstrip("\n").split("\t")
         seconds = float(end) - float(start)
+        rss, cpu = "n/a", "n/a"
         try:
             with open(f"{work}/{rid}.time") as t:
-                m = re.search(r"Maximum resident set size \(kbytes\): (\d+)", t.read())
+                text = t.read()
+            m = re.search(r"Maximum resident set size \(kbytes\): (\d+)", text)
             rss = f"{int(m.group(1)) / 1024:.0f}" if m else "n/a"
+            user = re.search(r"User time \(seconds\): ([\d.]+)", text)
+            system = re.search(r"System time \(seconds\): ([\d.]+)", text)
+            if user and system:
+                u, s = float(user.group(1)), float(system.group(1))
+                # Busy CPU time of everything else on the machine meanwhile: noise.
+                others = max(int(busy) / ticks - u - s, 0.0)
+                cpu = f"{u:.1f} / {s:.1f} / {others:.1f}"
         except OSError:
-            rss = "n/a"
+            pass
         step = "generate" if rid.endswith("generate") else "check"
         cells = ["-"] * 5
         target = "-"
@@ -153,13 +172,15 @@ with open(records_path) as f:
                 cells = ["n/a"] * 5
             if ranks == "1":
                 target = "yes" if seconds <= 30 and rc in ("0", "3") else "no"
-        print(f"| {chain} | {step} | {ranks} | {rc} | {seconds:.2f} | {rss} | "
+        print(f"| {chain} | {step} | {ranks} | {rc} | {seconds:.2f} | {cpu} | {rss} | "
               + " | ".join(cells) + f" | {target} |")
 PY
     echo
     echo "whole command s: date +%s.%N around the command: process (and mpirun) start-up,"
     echo "reading the chain file, the analysis and printing the report. max RSS:"
     echo "/usr/bin/time -v; under mpirun the largest single process it waited for."
+    echo "CPU s: user and system seconds of the run (all its processes) and the busy CPU"
+    echo "seconds of everything else on the machine meanwhile (/proc/stat): noise."
 } | tee "$work/results.md"
 
 if [[ "$failures" -ne 0 ]]; then

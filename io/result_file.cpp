@@ -76,6 +76,9 @@ void write_result_file(const std::string& path, MPI_Comm comm, const ResultConte
             h5::write_attribute(g, "peak_memory_bytes", c.peak_memory_bytes, file);
             h5::write_attribute(g, "ranks", static_cast<std::int64_t>(c.ranks), file);
             h5::write_attribute(g, "converged", static_cast<std::int64_t>(c.converged), file);
+            if (c.detailed_balance_violation)
+                h5::write_attribute(g, "detailed_balance_violation", *c.detailed_balance_violation,
+                                    file);
         }
         {
             h5::Handle g = h5::create_group(f, "history", file);

@@ -40,6 +40,7 @@ struct CertificateRecord {
     int ranks = 1;
     bool converged = false;
     std::string residual_definition;
+    std::optional<double> detailed_balance_violation; // max relative, over state pairs
 };
 
 struct HistoryRecord {

@@ -80,6 +80,10 @@ nlohmann::json to_json(const SolveReport& r) {
                           {"absorption_iterations", r.absorption_iterations},
                           {"absorption_relative_residual", r.absorption_residual}};
     }
+    if (r.detailed_balance_violation)
+        j["reversibility"] = {{"max_relative_violation", *r.detailed_balance_violation},
+                              {"reversible", r.reversible},
+                              {"verdict", r.reversibility_verdict}};
     j["wall_seconds"] = r.wall_seconds;
     j["peak_memory_bytes_per_rank"] = r.peak_memory_bytes;
     nlohmann::json vars = nlohmann::json::array();
@@ -152,6 +156,8 @@ std::string to_text(const SolveReport& r) {
     if (r.validation.renormalized_rows > 0)
         t += fmt::format("input        {} row(s) renormalized, largest correction {:.3g}\n",
                          r.validation.renormalized_rows, r.validation.largest_correction);
+    if (r.detailed_balance_violation)
+        t += fmt::format("reversible   {}\n", r.reversibility_verdict);
     t += fmt::format("time         {:.2f} s wall, peak memory {} (largest rank)\n", r.wall_seconds,
                      bytes(r.peak_memory_bytes));
     if (r.output)

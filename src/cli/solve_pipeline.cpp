@@ -5,6 +5,7 @@
 #include "solve/assemble.hpp"
 #include "solve/per_class.hpp"
 #include "structure_report.hpp"
+#include "summary/reversibility.hpp"
 
 #include <fmt/format.h>
 
@@ -66,6 +67,7 @@ io::ResultContent result_content(const SolveReport& r, const std::string& chain_
     cert.ranks = r.ranks;
     cert.converged = r.certificate.meets(r.tolerance);
     cert.residual_definition = r.residual_definition;
+    cert.detailed_balance_violation = r.detailed_balance_violation;
     c.has_distribution = r.has_distribution;
     if (!r.classes.empty()) {
         io::ClassesRecord rec;
@@ -343,6 +345,12 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         if (!outcome.met)
             throw uncertified(request, report, outcome.attempts);
         report.local_pi = local_entries(outcome.pi);
+        // Detailed balance tells users whether a product-form shortcut may exist.
+        const auto balance = summary::check_detailed_balance(a, outcome.pi);
+        report.detailed_balance_violation = balance.max_relative_violation;
+        report.reversible = summary::is_reversible(balance, report.certificate.residual);
+        report.reversibility_verdict =
+            summary::reversibility_verdict(balance, report.certificate.residual);
     }
 
     if (report.has_distribution)

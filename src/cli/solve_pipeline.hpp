@@ -81,6 +81,9 @@ struct SolveReport {
     std::uint64_t peak_memory_bytes = 0;
     std::vector<summary::Marginal> variables;
     std::vector<TruncationNote> truncation;
+    std::optional<double> detailed_balance_violation; // max relative violation
+    bool reversible = false;
+    std::string reversibility_verdict;
     double truncation_threshold = 0;
     std::optional<std::string> output;
     RowRange rows;                // this rank's rows

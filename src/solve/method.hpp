@@ -47,4 +47,13 @@ inline bool is_better(const Certificate& c, const Attempt& so_far) {
     return c.residual < p.residual;
 }
 
+// Copies `candidate` (certified as `c`) into the attempt when it beats its best.
+void keep_if_better(Attempt& attempt, const TransposedChain& a, Vec candidate,
+                    const Certificate& c);
+
+// The method's own tolerance for the next round. Its residual and the certificate
+// differ by a scale (the pin, the eigenvector's norm), so tighten by the factor the
+// certificate still misses, with a margin of 10.
+double tightened(double current, const Certificate& c, double target);
+
 } // namespace longrun::solve

@@ -84,16 +84,10 @@ Attempt run_eigen(const TransposedChain& a, Vec warm_start, const MethodSettings
         attempt.notes.push_back(fmt::format(
             "round {}: {} iterations, eigenvalue {:.15g}{:+.2e}i, certified residual {:.3e}",
             round + 1, its, kr, ki, c.residual));
-        if (is_better(c, attempt)) {
-            if (!attempt.x)
-                attempt.x = create_state_vector(a);
-            check(VecCopy(x, attempt.x), "VecCopy");
-            attempt.certificate = c;
-        }
+        keep_if_better(attempt, a, x, c);
         if (c.meets(s.tolerance))
             break;
-        const double missing = c.valid ? s.tolerance / c.residual : 1e-2;
-        tol = std::max(tol * std::min(0.5, 0.1 * missing), 1e-15);
+        tol = tightened(tol, c, s.tolerance);
         check(EPSSetTolerances(eps, tol, 100000), "EPSSetTolerances");
         Vec initial[1] = {attempt.x.get()};
         check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");

@@ -42,7 +42,14 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
             if (at.x && is_better(at.certificate, best))
                 best = std::move(at);
         } catch (const LibraryError& e) {
-            // A breakdown in one method is a reason to try the next one.
+            // A breakdown in one method is a reason to try the next one, but only
+            // alone: with several ranks the error may have hit this rank only,
+            // while the others still wait inside the method's collective calls.
+            // Passing it on makes the front end abort the job instead of hanging.
+            int ranks = 1;
+            MPI_Comm_size(PetscObjectComm((PetscObject)a.matrix.get()), &ranks);
+            if (ranks > 1)
+                throw;
             record.outcome = std::string("failed: ") + e.what();
         }
         if (settings.progress)

@@ -191,3 +191,24 @@ TEST_F(Truncation, MassAtTheUpperBoundOfAnMM1KIsTheClosedFormAndWarnsOnlyWhenLar
 
 } // namespace
 } // namespace longrun
+
+namespace longrun {
+namespace {
+
+class TinyChains : public testing_support::MpiTest {};
+
+TEST_F(TinyChains, ThreeStateCycleSolvesOnEveryRankCount) {
+    // Regression: hypre's exact coarsest-level solve met the singular system on one
+    // rank only and left the others waiting. Rates 2 forward and 1 back around a
+    // 3-cycle: by symmetry every state has probability 1/3.
+    std::vector<std::uint64_t> s{0, 0, 1, 1, 2, 2}, t{1, 2, 0, 2, 0, 1};
+    std::vector<double> w{2, 1, 1, 2, 2, 1};
+    const auto path = write(io::chain_from_triples(io::ChainKind::ctmc, 3, s, t, w), "cyc3.h5");
+    for (const char* method : {"auto", "linear"}) {
+        const auto pi = gather(solve(path, method, 1e-13));
+        EXPECT_LT(max_abs_difference(pi, {1.0 / 3, 1.0 / 3, 1.0 / 3}), 1e-13) << method;
+    }
+}
+
+} // namespace
+} // namespace longrun
