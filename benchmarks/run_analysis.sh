@@ -32,28 +32,9 @@ work="${2:-}"
 chains="${LONGRUN_ANALYSIS_CHAINS:-tandem:3163 graph-walk:10000000}"
 limit="${LONGRUN_BENCH_TIMEOUT:-900}"
 
-die() {
-    echo "run_analysis.sh: $*" >&2
-    exit 2
-}
-
-find_binary() { # NAME: the first of BUILD/src/NAME, BUILD/benchmarks/NAME, BUILD/NAME, BUILD/bin/NAME
-    local candidate
-    for candidate in "$build/src/$1" "$build/benchmarks/$1" "$build/$1" "$build/bin/$1"; do
-        if [[ -x "$candidate" && -f "$candidate" ]]; then
-            (cd "$(dirname "$candidate")" && echo "$(pwd)/$1")
-            return 0
-        fi
-    done
-    return 1
-}
-
-[[ -d "$build" ]] || die "build folder '$build' does not exist (build first, see DEVELOPERS.md)"
-longrun="$(find_binary longrun)" || die "no longrun binary under '$build'"
-family="$(find_binary longrun-family)" || die "no longrun-family binary under '$build'"
-for tool in mpirun /usr/bin/time timeout "$python"; do
-    command -v "$tool" > /dev/null || die "'$tool' is not available"
-done
+# shellcheck source=benchmarks/bench_common.sh
+source "$(dirname "${BASH_SOURCE[0]}")/bench_common.sh"
+require_binaries
 
 if [[ -z "$work" ]]; then
     work="$(mktemp -d "${TMPDIR:-/tmp}/longrun-analysis.XXXXXX")"

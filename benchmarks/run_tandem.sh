@@ -36,28 +36,9 @@ sizes="${LONGRUN_BENCH_SIZES:-1001 301}"
 eigen_sizes="${LONGRUN_BENCH_EIGEN-301}" # set but empty: no eigen run
 limit="${LONGRUN_BENCH_TIMEOUT:-1800}"
 
-die() {
-    echo "run_tandem.sh: $*" >&2
-    exit 2
-}
-
-find_binary() { # NAME: the first of BUILD/src/NAME, BUILD/benchmarks/NAME, BUILD/NAME, BUILD/bin/NAME
-    local candidate
-    for candidate in "$build/src/$1" "$build/benchmarks/$1" "$build/$1" "$build/bin/$1"; do
-        if [[ -x "$candidate" && -f "$candidate" ]]; then
-            (cd "$(dirname "$candidate")" && echo "$(pwd)/$1")
-            return 0
-        fi
-    done
-    return 1
-}
-
-[[ -d "$build" ]] || die "build folder '$build' does not exist (build first, see DEVELOPERS.md)"
-longrun="$(find_binary longrun)" || die "no longrun binary under '$build'"
-family="$(find_binary longrun-family)" || die "no longrun-family binary under '$build'"
-for tool in mpirun /usr/bin/time timeout "$python"; do
-    command -v "$tool" > /dev/null || die "'$tool' is not available"
-done
+# shellcheck source=benchmarks/bench_common.sh
+source "$(dirname "${BASH_SOURCE[0]}")/bench_common.sh"
+require_binaries
 "$python" -c 'import h5py, numpy, scipy' 2> /dev/null ||
     die "$python lacks h5py, numpy or scipy"
 
