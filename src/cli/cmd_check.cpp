@@ -53,12 +53,7 @@ Action add_check(CLI::App& app) {
                 "1 usage error, 2 bad input.");
     sub->add_option("chain", o->chain, "chain file (HDF5, longrun.chain v1)")->required();
     sub->add_flag("--json", o->json, "print the report as one JSON object on stdout");
-    sub->add_flag("--renormalize", o->validation.renormalize,
-                  "rescale dtmc rows that do not sum to 1 instead of refusing the file");
-    sub->add_option("--row-sum-tol", o->validation.row_sum_tolerance,
-                    "allowed |row sum - 1| of a dtmc")
-        ->default_val(1e-8)
-        ->check(CLI::PositiveNumber);
+    add_validation_options(sub, o->validation);
     return [o](MPI_Comm comm) { return check_command(comm, *o); };
 }
 

@@ -112,12 +112,7 @@ Action add_convert(CLI::App& app) {
         ->required();
     sub->add_option("--kind", o->kind, "ctmc (rates) or dtmc (probabilities), for .mtx input")
         ->check(CLI::IsMember({"ctmc", "dtmc"}));
-    sub->add_flag("--renormalize", o->validation.renormalize,
-                  "rescale dtmc rows that do not sum to 1 (reports the largest correction)");
-    sub->add_option("--row-sum-tol", o->validation.row_sum_tolerance,
-                    "allowed |row sum - 1| of a dtmc")
-        ->default_val(1e-8)
-        ->check(CLI::PositiveNumber);
+    add_validation_options(sub, o->validation);
     sub->add_option("--chunk", o->chunk, "HDF5 chunk length in elements (0: contiguous)")
         ->default_val(0);
     sub->add_option("--deflate", o->deflate, "deflate level 1-9 for chunked output (0: none)")

@@ -82,12 +82,7 @@ Action add_solve(CLI::App& app) {
                     "for linear: amg (hypre BoomerAMG), ilu (block-Jacobi/ILU(0)), lu (MUMPS)")
         ->default_val("amg")
         ->check(CLI::IsMember({"amg", "ilu", "lu"}));
-    sub->add_flag("--renormalize", o->request.validation.renormalize,
-                  "rescale dtmc rows that do not sum to 1 instead of refusing the file");
-    sub->add_option("--row-sum-tol", o->request.validation.row_sum_tolerance,
-                    "allowed |row sum - 1| of a dtmc")
-        ->default_val(1e-8)
-        ->check(CLI::PositiveNumber);
+    add_validation_options(sub, o->request.validation);
     sub->add_flag("--no-analysis{false}", o->request.analyse_structure,
                   "skip the structure check (closed classes, period) that runs before solving; "
                   "for chains too large to gather on one rank (over 2^31 - 1 transitions)");
