@@ -74,7 +74,7 @@ Action add_solve(CLI::App& app) {
                     "when complete");
     sub->add_option("--method", o->request.method, "auto, linear or eigen")
         ->default_val("auto")
-        ->check(CLI::IsMember({"auto", "linear", "eigen"}));
+        ->check(CLI::IsMember(solve::method_names()));
     sub->add_option("--tol", o->request.tolerance, "certificate tolerance on the residual")
         ->default_val(1e-10)
         ->check(CLI::PositiveNumber);

@@ -14,6 +14,7 @@
 
 #include <chrono>
 #include <cmath>
+#include <cstdio>
 
 #ifndef LONGRUN_VERSION
 #define LONGRUN_VERSION "dev"
@@ -206,7 +207,9 @@ void solve_per_class(MPI_Comm comm, const SolveRequest& request, const io::Chain
             solve::restrict_to_class(comm, rows, class_of, position, static_cast<std::uint32_t>(k));
         const solve::TransposedChain sub_a = solve::assemble_transposed(comm, sub.rows());
         settings.progress->note(fmt::format("class {}: {} states", k + 1, closed.size));
-        solve::SolveOutcome result = solve::solve_stationary(sub_a, request.method, settings);
+        solve::MethodSettings class_settings = settings;
+        class_settings.coordinates = nullptr; // they describe the whole chain's rows
+        solve::SolveOutcome result = solve::solve_stationary(sub_a, request.method, class_settings);
         if (!result.met)
             throw uncertified(request, report, result.attempts,
                               fmt::format(" for closed class {}", k + 1));
@@ -256,6 +259,24 @@ void solve_per_class(MPI_Comm comm, const SolveRequest& request, const io::Chain
     report.local_pi = local_entries(x);
 }
 
+// MemAvailable shared by the ranks on this node (an upper bound per rank when
+// ranks span nodes); 0 when unknown.
+std::uint64_t available_memory_per_rank(MPI_Comm comm) {
+    std::uint64_t kib = 0;
+    if (comm_rank(comm) == 0) {
+        std::FILE* f = std::fopen("/proc/meminfo", "r");
+        if (f) {
+            char line[256];
+            while (std::fgets(line, sizeof line, f))
+                if (std::sscanf(line, "MemAvailable: %lu kB", &kib) == 1)
+                    break;
+            std::fclose(f);
+        }
+    }
+    MPI_Bcast(&kib, 1, MPI_UINT64_T, 0, comm);
+    return kib * 1024 / static_cast<std::uint64_t>(comm_size(comm));
+}
+
 // A lower bound of 0 on an integer variable is taken as natural (an empty queue,
 // no busy servers), not as a cut: its mass is reported but never warned about.
 void check_truncation(const io::StateVariable& v, const summary::Marginal& m, double threshold,
@@ -283,7 +304,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     const auto start = std::chrono::steady_clock::now();
     solve::Progress progress(comm, request.progress);
     // The method list is checked before any file is touched.
-    (void)solve::plan_for(request.method);
+    (void)solve::plan_for(request.method, {});
 
     LoadedChain loaded =
         load_chain(request.chain_path, comm, request.validation, request.forced_rows);
@@ -331,13 +352,28 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     settings.tolerance = request.tolerance;
     settings.preconditioner = request.preconditioner;
     settings.progress = &progress;
+    solve::StateCoordinates coordinates;
+    for (const auto& v : chain.variables)
+        if (v.integral) {
+            coordinates.names.push_back(v.name);
+            coordinates.values.emplace_back(v.values.begin(), v.values.end());
+        }
+    settings.coordinates = &coordinates;
+    solve::ChainTraits traits;
+    traits.states = chain.states;
+    traits.transitions = chain.transitions;
+    traits.time = rows.time;
+    traits.ranks = report.ranks;
+    if (report.structure && !report.structure->closed.empty())
+        traits.period = report.structure->closed.front().period;
+    traits.memory_per_rank_bytes = available_memory_per_rank(comm);
 
     const bool several = report.structure && !report.structure->unique();
     io::LocalClassData class_data;
     if (several) {
         solve_per_class(comm, request, chain, rows, a, settings, report, class_data);
     } else {
-        solve::SolveOutcome outcome = solve::solve_stationary(a, request.method, settings);
+        solve::SolveOutcome outcome = solve::solve_stationary(a, request.method, settings, traits);
         report.attempts = outcome.attempts;
         report.method = outcome.method;
         report.iterations = outcome.iterations;

@@ -6,6 +6,8 @@
 #include "certificate.hpp"
 #include "progress.hpp"
 
+#include <chrono>
+#include <cstdint>
 #include <string>
 #include <vector>
 
@@ -13,11 +15,34 @@ namespace longrun::solve {
 
 enum class LinearPreconditioner { amg, ilu, lu };
 
+// Where methods hand their current iterate, for checkpoints. Both calls are
+// collective: due() returns the same answer on every rank (rank 0's clock
+// decides), so that save() is entered by all ranks or by none.
+class IterateSink {
+  public:
+    virtual ~IterateSink() = default;
+    virtual bool due() = 0;
+    // `x` need not be normalised; the sink copies what it needs. Never throws: a
+    // failed write is warned about and ends checkpointing, not the solve.
+    virtual void save(Vec x, const std::string& method, long iteration) = 0;
+};
+
+// Per-state values of the chain's state variables for this rank's rows
+// (variable-major: values[v][i - rows.begin]); empty when the chain has none.
+// Methods may use them to group states (aggregation by structure).
+struct StateCoordinates {
+    std::vector<std::string> names;
+    std::vector<std::vector<std::int64_t>> values;
+};
+
 struct MethodSettings {
     double tolerance = 1e-10; // on the certificate's residual
     int max_rounds = 5;       // solve, certify, tighten the solver's tolerance, repeat
     LinearPreconditioner preconditioner = LinearPreconditioner::amg;
     Progress* progress = nullptr;
+    IterateSink* checkpoint = nullptr;             // null: no checkpoints
+    const StateCoordinates* coordinates = nullptr; // null: none known
+    std::uint64_t memory_limit_bytes = 0;          // per rank; 0: not limited
 };
 
 struct Attempt {
@@ -26,12 +51,26 @@ struct Attempt {
     Certificate certificate;     // of x
     long iterations = 0;         // the method's own iterations, over all rounds
     std::vector<double> history; // the method's own residual per iteration
+    std::vector<double> seconds; // since `started`, one per history entry
     std::vector<std::string> notes;
+    std::chrono::steady_clock::time_point started = std::chrono::steady_clock::now();
 };
 
-// `warm_start` may be null; otherwise a normalised iterate with a's layout.
+// Appends one residual to the history (with its time) and updates the progress line.
+void record_iteration(Attempt& attempt, long iteration, double residual,
+                      const MethodSettings& settings);
+
+// The methods. `warm_start` may be null; otherwise a normalised iterate with a's
+// layout. Each method returns its best iterate with its certificate and never
+// decides alone whether that is good enough.
 Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSettings& settings);
 Attempt run_eigen(const TransposedChain& a, Vec warm_start, const MethodSettings& settings);
+Attempt run_shift_invert(const TransposedChain& a, Vec warm_start, const MethodSettings& settings);
+Attempt run_direct(const TransposedChain& a, Vec warm_start, const MethodSettings& settings);
+Attempt run_power(const TransposedChain& a, Vec warm_start, const MethodSettings& settings);
+Attempt run_gauss_seidel(const TransposedChain& a, Vec warm_start, const MethodSettings& settings);
+Attempt run_gth(const TransposedChain& a, Vec warm_start, const MethodSettings& settings);
+Attempt run_aggregation(const TransposedChain& a, Vec warm_start, const MethodSettings& settings);
 
 } // namespace longrun::solve
 

@@ -20,16 +20,21 @@ namespace {
 constexpr PetscInt no_pin = -1;
 
 struct MonitorContext {
-    Progress* progress;
-    std::vector<double>* history;
+    Attempt* attempt;
+    const MethodSettings* settings;
     long base_iteration;
 };
 
-PetscErrorCode monitor(KSP, PetscInt it, PetscReal rnorm, void* raw) {
+PetscErrorCode monitor(KSP ksp, PetscInt it, PetscReal rnorm, void* raw) {
     auto* ctx = static_cast<MonitorContext*>(raw);
-    ctx->history->push_back(rnorm);
-    if (ctx->progress)
-        ctx->progress->update(ctx->base_iteration + it, rnorm);
+    record_iteration(*ctx->attempt, ctx->base_iteration + it, rnorm, *ctx->settings);
+    if (ctx->settings->checkpoint && it > 0 && ctx->settings->checkpoint->due()) {
+        // GMRES keeps no iterate between restarts: build it (one preconditioner
+        // application), only when a checkpoint is due.
+        Vec current = nullptr;
+        PetscCall(KSPBuildSolution(ksp, nullptr, &current));
+        ctx->settings->checkpoint->save(current, "linear", ctx->base_iteration + it);
+    }
     return 0;
 }
 
@@ -152,7 +157,7 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin, const Me
     const PetscInt max_it = 10000;
     check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, max_it), "KSPSetTolerances");
     check(KSPSetInitialGuessNonzero(ksp, PETSC_TRUE), "KSPSetInitialGuessNonzero");
-    MonitorContext ctx{s.progress, &attempt.history, attempt.iterations};
+    MonitorContext ctx{&attempt, &s, attempt.iterations};
     check(KSPMonitorSet(ksp, monitor, &ctx, nullptr), "KSPMonitorSet");
     check(KSPSetFromOptions(ksp), "KSPSetFromOptions");
 

@@ -16,6 +16,13 @@ struct LibraryError : Error {
     explicit LibraryError(const std::string& m) : Error(ExitCode::numerical, m) {}
 };
 
+// A method that will not run on this chain (too many states for gth, a memory
+// estimate over the limit). Thrown on every rank alike, after agreeing; `auto`
+// moves on to its next method.
+struct MethodDeclined : Error {
+    explicit MethodDeclined(const std::string& m) : Error(ExitCode::numerical, m) {}
+};
+
 // Makes PETSc return error codes instead of printing a trace and aborting; call
 // once after PetscInitialize.
 void use_exceptions_for_petsc_errors();

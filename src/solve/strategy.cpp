@@ -2,35 +2,156 @@
 
 #include <fmt/format.h>
 
+#include <algorithm>
+#include <sstream>
+
 namespace longrun::solve {
 
-std::vector<std::string> method_names() {
-    return {"auto", "linear", "eigen"};
+const std::vector<MethodEntry>& method_table() {
+    static const std::vector<MethodEntry> table = {
+        {"linear", "GMRES + algebraic multigrid on Q^T x = 0, then pinned (-linear_)", run_linear},
+        {"eigen", "Krylov-Schur on P^T, ctmc uniformised (-eigen_)", run_eigen},
+        {"shift-invert", "Krylov-Schur with shift-and-invert near eigenvalue 1 (-shift_)",
+         run_shift_invert},
+        {"direct", "sparse LU (MUMPS) of the pinned system (-direct_)", run_direct},
+        {"aggregation", "multilevel iterative aggregation-disaggregation (-aggregation_)",
+         run_aggregation},
+        {"gauss-seidel", "Gauss-Seidel sweeps, forward/backward/symmetric (-gs_)",
+         run_gauss_seidel},
+        {"power", "power iteration, lazy when the chain is periodic (-power_)", run_power},
+        {"gth", "exact GTH elimination on one rank, small chains (-gth_)", run_gth},
+    };
+    return table;
 }
 
-std::vector<std::string> plan_for(const std::string& method) {
-    if (method == "auto")
-        return {"linear", "eigen"};
-    if (method == "linear" || method == "eigen")
-        return {method};
-    throw UsageError("unknown method '" + method + "' (choose auto, linear or eigen)");
+std::vector<std::string> method_names() {
+    std::vector<std::string> names{"auto"};
+    for (const auto& m : method_table())
+        names.push_back(m.name);
+    return names;
+}
+
+namespace {
+
+const MethodEntry* find_method(const std::string& name) {
+    for (const auto& m : method_table())
+        if (m.name == name)
+            return &m;
+    return nullptr;
+}
+
+std::string joined_names() {
+    std::string all;
+    for (const auto& n : method_names())
+        all += (all.empty() ? "" : ", ") + n;
+    return all;
+}
+
+// Bytes of MUMPS factors are hard to predict; this errs high on purpose (the
+// 1,002,001-state tandem line needed about 3 GiB, about 3,000 bytes per state).
+std::uint64_t direct_memory_estimate(const ChainTraits& t) {
+    return t.states * 3200ULL / std::max(1, t.ranks);
+}
+
+// The decision rule of `auto`; README "How auto chooses" states the evidence.
+std::vector<std::string> auto_plan(const ChainTraits& t, std::string& why) {
+    constexpr std::uint64_t exact_limit = 2000;
+    if (t.states <= exact_limit) {
+        why = fmt::format("{} states <= {}: exact elimination first", t.states, exact_limit);
+        return {"gth", "direct", "linear", "eigen"};
+    }
+    std::vector<std::string> plan;
+    if (t.nearly_decomposable) {
+        why = "weakly coupled blocks suspected: aggregation first";
+        plan = {"aggregation", "shift-invert", "linear", "eigen"};
+    } else {
+        why = "linear first (fastest measured on the benchmark families)";
+        plan = {"linear", "aggregation", "eigen"};
+    }
+    const bool direct_fits = t.memory_per_rank_bytes == 0
+                                 ? t.states <= 200000
+                                 : direct_memory_estimate(t) < t.memory_per_rank_bytes / 2;
+    if (direct_fits && t.states <= 2000000)
+        plan.insert(plan.end() - 1, "direct");
+    else
+        why += "; direct skipped (memory estimate too large)";
+    return plan;
+}
+
+std::pair<PetscLogEvent, bool> matmult_event() {
+    PetscBool active = PETSC_FALSE;
+    PetscLogIsActive(&active);
+    if (!active && PetscLogDefaultBegin() != 0)
+        return {0, false};
+    PetscLogEvent id = 0;
+    if (PetscLogEventGetId("MatMult", &id) != 0)
+        return {0, false};
+    return {id, true};
+}
+
+long matmult_count() {
+    static const auto [id, ok] = matmult_event();
+    if (!ok)
+        return 0;
+    PetscEventPerfInfo info{};
+    if (PetscLogEventGetPerfInfo(0, id, &info) != 0)
+        return 0;
+    return info.count;
+}
+
+} // namespace
+
+std::vector<std::string> plan_for(const std::string& method, const ChainTraits& traits,
+                                  std::string* reason) {
+    std::string why;
+    std::vector<std::string> plan;
+    if (method == "auto") {
+        plan = auto_plan(traits, why);
+    } else {
+        std::stringstream in(method);
+        std::string name;
+        while (std::getline(in, name, ',')) {
+            if (!find_method(name))
+                throw UsageError("unknown method '" + name + "' (choose " + joined_names() + ")");
+            plan.push_back(name);
+        }
+        if (plan.empty())
+            throw UsageError("no method given (choose " + joined_names() + ")");
+        why = "chosen by the user";
+    }
+    if (reason)
+        *reason = why;
+    return plan;
 }
 
 SolveOutcome solve_stationary(const TransposedChain& a, const std::string& method,
-                              const MethodSettings& settings) {
+                              const MethodSettings& settings, const ChainTraits& traits,
+                              Vec warm_start) {
     SolveOutcome out;
+    out.plan = plan_for(method, traits, &out.plan_reason);
+    if (settings.progress && method == "auto")
+        settings.progress->note("auto: " + fmt::format("{}", fmt::join(out.plan, ", ")) + " (" +
+                                out.plan_reason + ")");
     Attempt best;
-    for (const auto& name : plan_for(method)) {
+    if (warm_start) {
+        best.method = "start";
+        best.x = create_state_vector(a);
+        check(VecCopy(warm_start, best.x), "VecCopy");
+        best.certificate = certify(a, best.x);
+    }
+    for (const auto& name : out.plan) {
         AttemptRecord record;
         record.method = name;
         Vec warm = best.x ? best.x.get() : nullptr;
+        const long products_before = matmult_count();
+        const auto started = std::chrono::steady_clock::now();
         try {
-            Attempt at =
-                name == "linear" ? run_linear(a, warm, settings) : run_eigen(a, warm, settings);
+            Attempt at = find_method(name)->run(a, warm, settings);
             record.iterations = at.iterations;
             record.residual = at.certificate.residual;
             record.met = at.certificate.meets(settings.tolerance);
             record.history = at.history;
+            record.history_seconds = at.seconds;
             record.notes = at.notes;
             record.outcome = record.met ? fmt::format("certified residual {:.3e} <= {:.1e}",
                                                       record.residual, settings.tolerance)
@@ -51,7 +172,13 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
             if (ranks > 1)
                 throw;
             record.outcome = std::string("failed: ") + e.what();
+        } catch (const MethodDeclined& e) {
+            // Agreed on every rank by the method (size or memory limits): skip it.
+            record.outcome = std::string("skipped: ") + e.what();
         }
+        record.seconds =
+            std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
+        record.matvecs = matmult_count() - products_before;
         if (settings.progress)
             settings.progress->note(name + ": " + record.outcome);
         out.attempts.push_back(std::move(record));
