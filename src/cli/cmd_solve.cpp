@@ -5,6 +5,8 @@
 
 #include "io/mpi_agree.hpp"
 
+#include <fmt/format.h>
+
 #include <cstdio>
 #include <memory>
 
@@ -20,6 +22,9 @@ struct SolveOptions {
     bool quiet = false;
     std::optional<std::uint64_t> start_state;
     std::optional<std::string> start_distribution;
+    std::optional<std::string> warm_start;
+    std::optional<std::string> checkpoint;
+    std::optional<std::string> resume;
 };
 
 int solve_command(MPI_Comm comm, SolveOptions& o) {
@@ -33,9 +38,24 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
                                                           : solve::LinearPreconditioner::amg;
     o.request.progress = !o.quiet;
     if ((o.start_state || o.start_distribution) && !o.request.per_class)
-        throw UsageError("--start and --start-distribution go with --per-class");
+        throw UsageError("--from and --from-distribution go with --per-class");
     if (o.start_state && o.start_distribution)
-        throw UsageError("give either --start or --start-distribution, not both");
+        throw UsageError("give either --from or --from-distribution, not both");
+    if (o.warm_start && o.resume)
+        throw UsageError("give either --start (an earlier result) or --resume (a checkpoint)");
+    for (const auto* path : {&o.warm_start, &o.checkpoint, &o.resume})
+        if (*path)
+            require_distinct(o.request.chain_path, **path);
+    if (o.checkpoint) {
+        if (!o.output.empty())
+            require_distinct(o.output, *o.checkpoint);
+        require_writable_folder(*o.checkpoint);
+    }
+    if (o.resume && !o.checkpoint)
+        require_writable_folder(*o.resume);
+    o.request.warm_start = o.warm_start;
+    o.request.checkpoint = o.checkpoint;
+    o.request.resume = o.resume;
     o.request.start_state = o.start_state;
     o.request.start_distribution = o.start_distribution;
     const SolveReport report = run_solve(comm, o.request);
@@ -51,6 +71,13 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
 
 } // namespace
 
+std::string methods_help() {
+    std::string text = "  auto          size, kind and structure decide; falls back on failure\n";
+    for (const auto& m : solve::method_table())
+        text += fmt::format("  {:<13} {}\n", m.name, m.summary);
+    return text;
+}
+
 Action add_solve(CLI::App& app) {
     auto o = std::make_shared<SolveOptions>();
     auto* sub = app.add_subcommand(
@@ -60,9 +87,11 @@ Action add_solve(CLI::App& app) {
         "(ctmc); a result is written only when it is within --tol.\n"
         "  longrun solve chain.h5 -o result.h5\n"
         "  mpirun -n 4 longrun solve chain.h5 -o result.h5 --method linear --tol 1e-12\n"
-        "Methods: auto (linear, then eigen if needed), linear (GMRES + algebraic multigrid on\n"
-        "the system with one state pinned; PETSc prefix -linear_), eigen (Krylov-Schur on P^T,\n"
-        "ctmc uniformised; SLEPc prefix -eigen_).");
+        "Long runs: --checkpoint ck.h5 --checkpoint-every 600, then after a crash or a time\n"
+        "limit the same command with --resume ck.h5. Sweeps: --start previous-result.h5.\n"
+        "Methods (--method NAME, or a comma list tried in order; PETSc/SLEPc options after a\n"
+        "lone -- with the method's prefix, e.g. -- -linear_ksp_type bcgs):\n" +
+            methods_help());
     // Existence is the reader's check, not the parser's: a missing or unreadable
     // input is bad input (exit 2), not a usage error.
     sub->footer("Exit codes: 0 done, 1 usage error, 2 bad input, 3 no unique stationary\n"
@@ -72,9 +101,17 @@ Action add_solve(CLI::App& app) {
     sub->add_option("-o,--output", o->output,
                     "result file to write (HDF5); written under a temporary name and renamed "
                     "when complete");
-    sub->add_option("--method", o->request.method, "auto, linear or eigen")
+    sub->add_option("--method", o->request.method,
+                    "a method, or several separated by commas and tried in order (see above)")
         ->default_val("auto")
-        ->check(CLI::IsMember(solve::method_names()));
+        ->check([](const std::string& v) -> std::string {
+            try {
+                (void)solve::plan_for(v, {});
+            } catch (const Error& e) {
+                return e.what();
+            }
+            return "";
+        });
     sub->add_option("--tol", o->request.tolerance, "certificate tolerance on the residual")
         ->default_val(1e-10)
         ->check(CLI::PositiveNumber);
@@ -89,12 +126,34 @@ Action add_solve(CLI::App& app) {
     sub->add_flag("--per-class", o->request.per_class,
                   "when the chain has several closed classes (or absorbing states), solve each "
                   "class on its own instead of stopping with exit 3");
-    sub->add_option("--start", o->start_state,
+    sub->add_option("--from", o->start_state,
                     "with --per-class: the start state; adds the probability of ending in each "
                     "class and the long-run distribution from that start (/distribution)");
-    sub->add_option("--start-distribution", o->start_distribution,
+    sub->add_option("--from-distribution", o->start_distribution,
                     "with --per-class: an HDF5 file whose /distribution dataset is the start "
                     "distribution");
+    sub->add_option("--start", o->warm_start,
+                    "warm start: begin from /distribution of an earlier result (or checkpoint) "
+                    "of a chain with the same states, e.g. the previous point of a parameter "
+                    "sweep")
+        ->check([](const std::string& v) -> std::string {
+            if (!v.empty() && v.find_first_not_of("0123456789") == std::string::npos)
+                return "--start takes a result file to warm-start from; for the start state "
+                       "of --per-class use --from " +
+                       v;
+            return "";
+        });
+    sub->add_option("--checkpoint", o->checkpoint,
+                    "write the current iterate to this HDF5 file while solving (atomically: a "
+                    "crash never leaves a half-written checkpoint)");
+    sub->add_option("--checkpoint-every", o->request.checkpoint_every,
+                    "seconds between checkpoints")
+        ->default_val(300)
+        ->check(CLI::NonNegativeNumber);
+    sub->add_option("--resume", o->resume,
+                    "continue from this checkpoint if it exists (else start from the beginning, "
+                    "and say so); keeps checkpointing into it unless --checkpoint names another "
+                    "file. The same command line can thus be resubmitted after a time limit");
     sub->add_option("--truncation-warn", o->request.truncation_threshold,
                     "warn when the probability at a state variable's declared bound exceeds "
                     "this (a sign that the bound cuts off real mass)")

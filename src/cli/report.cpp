@@ -46,11 +46,19 @@ nlohmann::json to_json(const SolveReport& r) {
     for (const auto& a : r.attempts)
         attempts.push_back({{"method", a.method},
                             {"iterations", a.iterations},
+                            {"matvecs", a.matvecs},
+                            {"seconds", a.seconds},
                             {"residual", a.residual},
                             {"certified", a.met},
                             {"outcome", a.outcome},
                             {"notes", a.notes}});
     j["attempts"] = attempts;
+    j["plan"] = {{"methods", r.plan}, {"reason", r.plan_reason}};
+    if (!r.start_from.empty())
+        j["start"] = {
+            {"how", r.start_from},
+            {"residual", r.start_residual ? nlohmann::json(*r.start_residual) : nlohmann::json()}};
+    j["checkpoints_written"] = r.checkpoints_written;
     j["certificate"] = {{"method", r.method},
                         {"iterations", r.iterations},
                         {"residual", r.certificate.residual},
@@ -123,6 +131,10 @@ std::string to_text(const SolveReport& r) {
         tried += (tried.empty() ? "" : ", ") + a.method;
     t += tried.empty() ? fmt::format("method       {}\n", r.method)
                        : fmt::format("method       {} (tried: {})\n", r.method, tried);
+    if (!r.plan_reason.empty() && r.plan.size() > 1)
+        t += fmt::format("plan         {} ({})\n", fmt::join(r.plan, ", "), r.plan_reason);
+    if (!r.start_from.empty())
+        t += fmt::format("start        {}\n", r.start_from);
     t += fmt::format("iterations   {}\n", r.iterations);
     if (!r.classes.empty()) {
         t += fmt::format("classes      {} closed classes, each solved on its own{}\n",

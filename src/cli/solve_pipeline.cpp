@@ -1,6 +1,8 @@
 #include "solve_pipeline.hpp"
 
+#include "checkpoint.hpp"
 #include "io/hdf5.hpp"
+#include "io/iterate_file.hpp"
 #include "load.hpp"
 #include "solve/assemble.hpp"
 #include "solve/per_class.hpp"
@@ -15,6 +17,7 @@
 #include <chrono>
 #include <cmath>
 #include <cstdio>
+#include <filesystem>
 
 #ifndef LONGRUN_VERSION
 #define LONGRUN_VERSION "dev"
@@ -56,7 +59,10 @@ io::ResultContent result_content(const SolveReport& r, const std::string& chain_
     auto& cert = c.certificate;
     cert.method = r.method;
     for (const auto& a : r.attempts)
-        cert.trace.push_back(a.method + ": " + a.outcome);
+        cert.trace.push_back(fmt::format("{}: {} ({} iterations, {} products, {:.2f} s)", a.method,
+                                         a.outcome, a.iterations, a.matvecs, a.seconds));
+    if (!r.start_from.empty())
+        cert.trace.insert(cert.trace.begin(), "start: " + r.start_from);
     cert.iterations = static_cast<std::uint64_t>(r.iterations);
     cert.residual = r.certificate.residual;
     cert.tolerance = r.tolerance;
@@ -128,7 +134,7 @@ std::vector<double> start_vector(MPI_Comm comm, const SolveRequest& request, con
     if (request.start_state) {
         const auto s = *request.start_state;
         if (s >= chain.states) {
-            Error e(ExitCode::usage, fmt::format("--start {} is not a state of {} (0..{})", s,
+            Error e(ExitCode::usage, fmt::format("--from {} is not a state of {} (0..{})", s,
                                                  request.chain_path, chain.states - 1));
             e.mark_agreed();
             throw e;
@@ -338,7 +344,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
             // Every rank holds the same structure, so every rank throws this.
             Error e(ExitCode::no_unique,
                     fmt::format("{}: {} (details: longrun check {}; --per-class solves each "
-                                "class, --start STATE also gives the mixture)",
+                                "class, --from STATE also gives the mixture)",
                                 request.chain_path, words.verdict, request.chain_path));
             e.mark_agreed();
             throw e;
@@ -369,12 +375,82 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     traits.memory_per_rank_bytes = available_memory_per_rank(comm);
 
     const bool several = report.structure && !report.structure->unique();
+
+    // Where the iteration starts: a checkpoint to resume, or an earlier result.
+    solve::VecHandle warm;
+    double elapsed_before = 0;
+    std::optional<std::string> checkpoint_path = request.checkpoint;
+    std::optional<std::string> start_file = request.warm_start;
+    if (request.resume) {
+        if (!checkpoint_path)
+            checkpoint_path = request.resume;
+        int present = 0;
+        if (comm_rank(comm) == 0)
+            present = std::filesystem::exists(*request.resume) ? 1 : 0;
+        MPI_Bcast(&present, 1, MPI_INT, 0, comm);
+        if (present) {
+            const io::CheckpointInfo info = io::read_checkpoint_info(*request.resume, comm);
+            if (info.states != chain.states || info.transitions != chain.transitions) {
+                Error e(ExitCode::bad_input,
+                        fmt::format("{}: checkpoint of a chain with {} states and {} transitions "
+                                    "({}), not of {} ({} states, {} transitions)",
+                                    *request.resume, info.states, info.transitions, info.chain_path,
+                                    request.chain_path, chain.states, chain.transitions));
+                e.mark_agreed();
+                throw e;
+            }
+            elapsed_before = info.elapsed_seconds;
+            start_file = request.resume;
+            report.start_from =
+                fmt::format("resumed from {} ({} iteration {}, {:.1f} s before)", *request.resume,
+                            info.method, info.iteration, info.elapsed_seconds);
+        } else {
+            report.start_from =
+                fmt::format("no checkpoint at {} yet: started from the beginning", *request.resume);
+        }
+    }
+    if (start_file && !several) {
+        const auto local = io::read_distribution_slice(*start_file, comm, chain.rows, chain.states);
+        warm = solve::create_state_vector(a);
+        PetscScalar* xv = nullptr;
+        solve::check(VecGetArray(warm, &xv), "VecGetArray");
+        std::copy(local.begin(), local.end(), xv);
+        solve::check(VecRestoreArray(warm, &xv), "VecRestoreArray");
+        const solve::Certificate c = solve::certify(a, warm);
+        report.start_residual = c.residual;
+        if (start_file == request.warm_start)
+            report.start_from = "warm start from " + *start_file;
+        report.start_from += fmt::format("; residual {:.3e} on this chain", c.residual);
+    } else if (start_file) {
+        report.start_from = "warm start ignored: the chain has several closed classes";
+    }
+    if (!report.start_from.empty())
+        progress.note(report.start_from);
+    std::optional<CheckpointWriter> checkpoints;
+    if (checkpoint_path) {
+        io::CheckpointInfo info;
+        info.chain_path = request.chain_path;
+        info.states = chain.states;
+        info.transitions = chain.transitions;
+        info.elapsed_seconds = elapsed_before;
+        checkpoints.emplace(comm, *checkpoint_path, request.checkpoint_every, info, chain.rows,
+                            &progress);
+        settings.checkpoint = &*checkpoints;
+    }
     io::LocalClassData class_data;
     if (several) {
         solve_per_class(comm, request, chain, rows, a, settings, report, class_data);
     } else {
-        solve::SolveOutcome outcome = solve::solve_stationary(a, request.method, settings, traits);
+        solve::SolveOutcome outcome =
+            solve::solve_stationary(a, request.method, settings, traits, warm.get());
+        report.plan = outcome.plan;
+        report.plan_reason = outcome.plan_reason;
         report.attempts = outcome.attempts;
+        if (checkpoints && !outcome.met && outcome.pi) {
+            // The best iterate so far, for a resumed run with other settings.
+            checkpoints->save(outcome.pi, outcome.method, outcome.iterations);
+        }
+        report.checkpoints_written = checkpoints ? checkpoints->written() : 0;
         report.method = outcome.method;
         report.iterations = outcome.iterations;
         report.certificate = outcome.certificate;

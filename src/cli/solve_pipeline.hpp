@@ -34,6 +34,15 @@ struct SolveRequest {
     // the long-run mixture. One state, or a file with a /distribution dataset.
     std::optional<std::uint64_t> start_state;
     std::optional<std::string> start_distribution;
+    // Warm start: /distribution of an earlier result or checkpoint for a chain with
+    // the same states (parameter sweeps).
+    std::optional<std::string> warm_start;
+    // Write the current iterate to this file every `checkpoint_every` seconds.
+    std::optional<std::string> checkpoint;
+    double checkpoint_every = 300;
+    // Continue from this checkpoint when it exists (and keep checkpointing into
+    // it unless `checkpoint` names another file); start afresh when it does not.
+    std::optional<std::string> resume;
     // Mass at a declared bound above this is reported as a possible truncation bias.
     double truncation_threshold = 1e-6;
 };
@@ -72,6 +81,11 @@ struct SolveReport {
     double absorption_residual = 0;
     bool has_distribution = true; // false: per-class without a start
     std::vector<solve::AttemptRecord> attempts;
+    std::vector<std::string> plan; // methods in the order auto meant to try them
+    std::string plan_reason;
+    std::string start_from; // how the iteration was started (warm start, resume)
+    std::optional<double> start_residual;
+    long checkpoints_written = 0;
     std::string method;
     long iterations = 0;
     solve::Certificate certificate;

@@ -1,5 +1,7 @@
 #include "certificate.hpp"
 
+#include <fmt/format.h>
+
 #include <cmath>
 
 namespace longrun::solve {
@@ -65,8 +67,7 @@ Certificate certify(const TransposedChain& a, Vec x) {
         return c;
     }
     if (c.min_entry < negative_entry_limit) {
-        c.problem =
-            "entry " + std::to_string(where) + " is negative (" + std::to_string(c.min_entry) + ")";
+        c.problem = fmt::format("entry {} is negative ({:.3e})", where, c.min_entry);
         return c;
     }
     c.valid = true;

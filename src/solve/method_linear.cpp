@@ -160,6 +160,10 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin, const Me
     MonitorContext ctx{&attempt, &s, attempt.iterations};
     check(KSPMonitorSet(ksp, monitor, &ctx, nullptr), "KSPMonitorSet");
     check(KSPSetFromOptions(ksp), "KSPSetFromOptions");
+    // Later rounds tighten only the tolerance: an iteration limit set in the
+    // options database stays the user's.
+    PetscInt limit = max_it;
+    check(KSPGetTolerances(ksp, nullptr, nullptr, nullptr, &limit), "KSPGetTolerances");
 
     VecHandle candidate = create_state_vector(a);
     for (int round = 0; round < s.max_rounds; ++round) {
@@ -183,7 +187,7 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin, const Me
         if (reason < 0 && its == 0)
             break; // the solver cannot move: more rounds will not help
         rtol = tightened(rtol, c, s.tolerance);
-        check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, max_it), "KSPSetTolerances");
+        check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, limit), "KSPSetTolerances");
     }
     return attempt;
 }

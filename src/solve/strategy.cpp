@@ -138,8 +138,19 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
         best.x = create_state_vector(a);
         check(VecCopy(warm_start, best.x), "VecCopy");
         best.certificate = certify(a, best.x);
+        if (best.certificate.meets(settings.tolerance)) {
+            // A resumed or repeated solve whose start is already good enough.
+            AttemptRecord record;
+            record.method = "start";
+            record.residual = best.certificate.residual;
+            record.met = true;
+            record.outcome = fmt::format("the start is already within tolerance: residual {:.3e}",
+                                         record.residual);
+            out.attempts.push_back(std::move(record));
+        }
     }
-    for (const auto& name : out.plan) {
+    const bool start_met = !out.attempts.empty();
+    for (const auto& name : start_met ? std::vector<std::string>{} : out.plan) {
         AttemptRecord record;
         record.method = name;
         Vec warm = best.x ? best.x.get() : nullptr;
@@ -158,7 +169,9 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
                              : at.certificate.valid
                                  ? fmt::format("certified residual {:.3e} > {:.1e}",
                                                record.residual, settings.tolerance)
-                                 : "no valid iterate: " + at.certificate.problem;
+                             : at.x ? "no valid iterate: " + at.certificate.problem
+                                    : "stopped before producing an iterate" +
+                                          (at.notes.empty() ? "" : " (" + at.notes.back() + ")");
             out.iterations += at.iterations;
             if (at.x && is_better(at.certificate, best))
                 best = std::move(at);
