@@ -127,6 +127,7 @@ Structure analyse(MPI_Comm comm, const solve::LocalRows& in, bool want_class_of)
     std::vector<std::uint64_t> degree(in.rows.size(), 0);
     std::vector<Index> local_targets;
     std::vector<std::uint8_t> local_loop(in.rows.size(), 0);
+    std::vector<std::uint8_t> local_weak; // per kept edge: 1 when weak (see Structure)
     std::uint64_t loops = 0, zeros = 0;
     std::optional<LocalFault> fault;
     if (in.states >= std::numeric_limits<Index>::max())
@@ -143,8 +144,14 @@ Structure analyse(MPI_Comm comm, const solve::LocalRows& in, bool want_class_of)
                                std::to_string(total) + " (use --no-analysis)"};
     agree_or_throw(comm, fault);
     local_targets.reserve(in.targets.size());
+    local_weak.reserve(in.targets.size());
+    std::uint64_t weak = 0;
     for (std::size_t i = 0; i < in.rows.size(); ++i) {
         const std::uint64_t row = in.rows.begin + i;
+        double strongest = 0;
+        for (auto k = in.offsets[i]; k < in.offsets[i + 1]; ++k)
+            if (in.targets[k] != row)
+                strongest = std::max(strongest, in.weights[k]);
         for (auto k = in.offsets[i]; k < in.offsets[i + 1]; ++k) {
             if (!(in.weights[k] > 0)) {
                 ++zeros;
@@ -156,6 +163,9 @@ Structure analyse(MPI_Comm comm, const solve::LocalRows& in, bool want_class_of)
                 continue;
             }
             local_targets.push_back(static_cast<Index>(in.targets[k]));
+            const bool is_weak = in.weights[k] < Structure::weak_ratio * strongest;
+            local_weak.push_back(is_weak ? 1 : 0);
+            weak += is_weak;
             ++degree[i];
         }
     }
@@ -180,6 +190,12 @@ Structure analyse(MPI_Comm comm, const solve::LocalRows& in, bool want_class_of)
     gather(local_loop, all_loop, MPI_UINT8_T);
     gather(local_targets, g.targets, MPI_UINT32_T);
     std::vector<Index>().swap(local_targets);
+    std::uint64_t weak_total = 0;
+    MPI_Allreduce(&weak, &weak_total, 1, MPI_UINT64_T, MPI_SUM, comm);
+    std::vector<std::uint8_t> all_weak; // 1 byte per edge, only when needed
+    if (weak_total > 0)
+        gather(local_weak, all_weak, MPI_UINT8_T);
+    std::vector<std::uint8_t>().swap(local_weak);
 
     Structure s;
     s.states = in.states;
@@ -202,6 +218,29 @@ Structure analyse(MPI_Comm comm, const solve::LocalRows& in, bool want_class_of)
             for (auto t : g.targets)
                 ++in_degree[t];
             s.max_in_degree = n ? *std::max_element(in_degree.begin(), in_degree.end()) : 0;
+        }
+        s.weak_edges = weak_total;
+        if (weak_total > 0) {
+            Graph strong;
+            strong.offsets.assign(n + 1, 0);
+            strong.targets.reserve(g.targets.size() - weak_total);
+            for (std::uint64_t v = 0; v < n; ++v) {
+                for (auto k = g.offsets[v]; k < g.offsets[v + 1]; ++k)
+                    if (!all_weak[k])
+                        strong.targets.push_back(g.targets[k]);
+                strong.offsets[v + 1] = strong.targets.size();
+            }
+            std::vector<std::uint8_t>().swap(all_weak);
+            Index blocks = 0;
+            const auto block = strongly_connected(strong, blocks);
+            std::vector<std::uint64_t> block_size(blocks, 0);
+            for (auto b : block)
+                ++block_size[b];
+            for (auto size_of_block : block_size)
+                if (size_of_block >= 2) {
+                    ++s.strong_blocks;
+                    s.states_in_blocks += size_of_block;
+                }
         }
         Index count = 0;
         component = strongly_connected(g, count);
@@ -256,8 +295,15 @@ Structure analyse(MPI_Comm comm, const solve::LocalRows& in, bool want_class_of)
                 c = closed_index[c] == unvisited ? Structure::not_closed : closed_index[c];
         }
         // Flatten: edges, degrees, components, largest, transient, reps, classes.
-        summary = {s.edges,         s.min_out_degree, s.max_out_degree,
-                   s.max_in_degree, s.components,     s.largest_components.size()};
+        summary = {s.edges,
+                   s.min_out_degree,
+                   s.max_out_degree,
+                   s.max_in_degree,
+                   s.weak_edges,
+                   s.strong_blocks,
+                   s.states_in_blocks,
+                   s.components,
+                   s.largest_components.size()};
         summary.insert(summary.end(), s.largest_components.begin(), s.largest_components.end());
         summary.push_back(s.transient);
         summary.push_back(s.transient_representatives.size());
@@ -283,6 +329,9 @@ Structure analyse(MPI_Comm comm, const solve::LocalRows& in, bool want_class_of)
         s.min_out_degree = next();
         s.max_out_degree = next();
         s.max_in_degree = next();
+        s.weak_edges = next();
+        s.strong_blocks = next();
+        s.states_in_blocks = next();
         s.components = next();
         for (auto k = next(); k > 0; --k)
             s.largest_components.push_back(next());

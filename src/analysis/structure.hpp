@@ -36,6 +36,18 @@ struct Structure {
     std::vector<ClosedClass> closed;               // ordered by lowest state
     std::uint64_t transient = 0;
     std::vector<std::uint64_t> transient_representatives; // up to 10
+    // Weak coupling: an edge is weak when its weight is below `weak_ratio` times
+    // the largest weight leaving its state. When dropping the weak edges splits
+    // the chain into several blocks (strongly connected, 2 states or more) that
+    // together hold most states, the chain is nearly completely decomposable:
+    // its spectrum clusters near the stationary eigenvalue and aggregation pays.
+    static constexpr double weak_ratio = 1e-3;
+    std::uint64_t weak_edges = 0;
+    std::uint64_t strong_blocks = 0;    // blocks of 2 or more states once weak edges are dropped
+    std::uint64_t states_in_blocks = 0; // states in those blocks
+    bool nearly_decomposable() const noexcept {
+        return strong_blocks >= 2 && 2 * states_in_blocks >= states;
+    }
     bool unique() const noexcept { return closed.size() == 1; }
     // Per state: the index into `closed`, or `not_closed` for a transient state.
     // Filled on every rank only when asked (4 bytes per state).

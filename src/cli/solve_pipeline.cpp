@@ -370,8 +370,10 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     traits.transitions = chain.transitions;
     traits.time = rows.time;
     traits.ranks = report.ranks;
-    if (report.structure && !report.structure->closed.empty())
+    if (report.structure && !report.structure->closed.empty()) {
         traits.period = report.structure->closed.front().period;
+        traits.nearly_decomposable = report.structure->nearly_decomposable();
+    }
     traits.memory_per_rank_bytes = available_memory_per_rank(comm);
 
     const bool several = report.structure && !report.structure->unique();

@@ -65,6 +65,11 @@ StructureWords describe_structure(MPI_Comm comm, const io::Chain& slice,
     j["zero_weights"] = s.zero_weights;
     j["strongly_connected_components"] = {{"count", s.components},
                                           {"largest_sizes", s.largest_components}};
+    j["weak_coupling"] = {{"weak_edges", s.weak_edges},
+                          {"weak_ratio", analysis::Structure::weak_ratio},
+                          {"strong_blocks", s.strong_blocks},
+                          {"states_in_blocks", s.states_in_blocks},
+                          {"nearly_decomposable", s.nearly_decomposable()}};
     nlohmann::json classes = nlohmann::json::array();
     std::string class_lines;
     std::uint64_t absorbing = 0;
@@ -140,6 +145,11 @@ StructureWords describe_structure(MPI_Comm comm, const io::Chain& slice,
     for (auto n : s.largest_components)
         largest += (largest.empty() ? "" : ", ") + std::to_string(n);
     t += fmt::format("components   {} strongly connected (largest: {})\n", s.components, largest);
+    if (s.nearly_decomposable())
+        t += fmt::format("coupling     nearly decomposable: {} blocks ({} states) joined only by "
+                         "{} weak transitions (weight < {:g} x the state's largest)\n",
+                         s.strong_blocks, s.states_in_blocks, s.weak_edges,
+                         analysis::Structure::weak_ratio);
     t += fmt::format("closed       {} closed class{}, {} absorbing state{}\n", s.closed.size(),
                      s.closed.size() == 1 ? "" : "es", absorbing, absorbing == 1 ? "" : "s");
     t += class_lines;

@@ -240,3 +240,47 @@ TEST_F(StructureTest, RanksWithoutRowsGiveTheSameStructure) {
 
 } // namespace
 } // namespace longrun
+
+namespace longrun {
+namespace {
+
+// Blocks of `size` states on a ring each, joined into a ring of blocks by one
+// transition of rate `coupling` from each block's last state to the next block.
+io::Chain coupled_rings(int blocks, int size, double coupling) {
+    std::vector<std::uint64_t> s, t;
+    std::vector<double> w;
+    for (int b = 0; b < blocks; ++b)
+        for (int i = 0; i < size; ++i) {
+            s.push_back(b * size + i);
+            t.push_back(b * size + (i + 1) % size);
+            w.push_back(1.0);
+            if (i == size - 1) {
+                s.push_back(b * size + i);
+                t.push_back(((b + 1) % blocks) * size);
+                w.push_back(coupling);
+            }
+        }
+    return io::chain_from_triples(io::ChainKind::ctmc, std::uint64_t(blocks) * size, s, t, w);
+}
+
+// The definition of near decomposability used here (weak edges below 1e-3 of
+// the state's largest weight) is our own heuristic; the chains make it obvious.
+TEST_F(StructureTest, WeaklyCoupledRingsAreNearlyDecomposable) {
+    const auto s = analyse(coupled_rings(6, 5, 1e-5), "rings.h5");
+    EXPECT_EQ(s.weak_edges, 6u);
+    EXPECT_EQ(s.strong_blocks, 6u);
+    EXPECT_EQ(s.states_in_blocks, 30u);
+    EXPECT_TRUE(s.nearly_decomposable());
+    EXPECT_TRUE(s.unique());
+}
+
+TEST_F(StructureTest, EvenlyCoupledRingsAndTandemLinesAreNot) {
+    const auto rings = analyse(coupled_rings(6, 5, 0.5), "rings.h5");
+    EXPECT_EQ(rings.weak_edges, 0u);
+    EXPECT_FALSE(rings.nearly_decomposable());
+    const auto line = analyse(testing_support::tandem(8, 8, 1.0, 1.1, 1.2), "tandem.h5");
+    EXPECT_FALSE(line.nearly_decomposable());
+}
+
+} // namespace
+} // namespace longrun
