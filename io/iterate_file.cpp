@@ -48,7 +48,10 @@ CheckpointInfo read_checkpoint_info(const std::string& path, MPI_Comm comm) {
         const std::string schema =
             h5::has_attribute(f, "schema") ? h5::read_string_attribute(f, "schema", path, "/") : "";
         if (schema != checkpoint_schema)
-            h5::fail(h5::Side::reading, path, "not a longrun checkpoint (schema '" + schema + "')");
+            h5::fail(h5::Side::reading, path,
+                     schema == "longrun.result"
+                         ? "a result file, not a checkpoint (--start warm-starts from a result)"
+                         : "not a longrun checkpoint (schema '" + schema + "')");
         info.chain_path = h5::read_string_attribute(f, "chain_path", path, "/");
         info.states = h5::read_u64_attribute(f, "states", path, "/");
         info.transitions = h5::read_u64_attribute(f, "transitions", path, "/");

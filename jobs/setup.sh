@@ -15,6 +15,7 @@ packages=(
   petsc-dev slepc-dev
   libcli11-dev nlohmann-json3-dev libfmt-dev libgtest-dev
   libyaml-cpp-dev libmuparser-dev
+  libplplot-dev plplot-driver-cairo
   python3 python3-numpy python3-scipy python3-h5py
   clang-format clang-14 libclang-rt-14-dev
 )

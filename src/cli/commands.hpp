@@ -19,5 +19,6 @@ Action add_convert(CLI::App& app);
 Action add_solve(CLI::App& app);
 Action add_check(CLI::App& app);
 Action add_generate(CLI::App& app);
+Action add_compare(CLI::App& app);
 
 } // namespace longrun::cli

@@ -286,6 +286,43 @@ TEST_F(CliBadInput, OutputFolderMissing) {
     EXPECT_FALSE(fs::exists(nowhere.parent_path()));
 }
 
+TEST_F(CliBadInput, StartGivenAStateNumberPointsToFrom) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    expect_refused(solve_args(good, {"--start", "3"}), good, code(ExitCode::usage), {"--from 3"}, 0,
+                   {}, false);
+}
+
+TEST_F(CliBadInput, CheckpointIsTheInput) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    expect_refused(solve_args(good, {"--checkpoint", good.string()}), good, code(ExitCode::usage),
+                   {"input"});
+}
+
+TEST_F(CliBadInput, ResumeFromAnotherChainsCheckpoint) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    const auto other = write_chain("awkward.h5", awkward_dtmc());
+    const auto checkpoint = dir_ / "ck.h5";
+    // A checkpoint of the awkward chain: an unreachable tolerance forces exit 4
+    // after the best iterate has been checkpointed.
+    const CommandResult first = run_command(command(
+        {"solve", other.string(), "-q", "--tol", "1e-30", "--checkpoint", checkpoint.string()}, 0));
+    ASSERT_EQ(first.exit_code, code(ExitCode::numerical)) << first.describe();
+    ASSERT_TRUE(fs::exists(checkpoint));
+    expect_solve_refused(good, code(ExitCode::bad_input), {checkpoint.string(), "40 states"},
+                         {"--resume", checkpoint.string()});
+}
+
+TEST_F(CliBadInput, ResultFileGivenToResume) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    const auto earlier = dir_ / "earlier.h5";
+    ASSERT_EQ(
+        run_command(command({"solve", good.string(), "-q", "-o", earlier.string()}, 0)).exit_code,
+        0);
+    // The file at fault is the result, not the chain: the line names it and --start.
+    expect_refused(solve_args(good, {"--resume", earlier.string()}), good,
+                   code(ExitCode::bad_input), {earlier.string(), "--start"}, 0, {}, false);
+}
+
 // --- numerics -------------------------------------------------------------
 
 TEST_F(CliBadInput, ToleranceThatCannotBeMet) {
