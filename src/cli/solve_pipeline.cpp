@@ -375,6 +375,9 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         traits.nearly_decomposable = report.structure->nearly_decomposable();
     }
     traits.memory_per_rank_bytes = available_memory_per_rank(comm);
+    // Methods with a large fixed cost (dense elimination, sparse LU) decline beyond
+    // this instead of being killed by the kernel halfway; keep room for the rest.
+    settings.memory_limit_bytes = traits.memory_per_rank_bytes * 8 / 10;
 
     const bool several = report.structure && !report.structure->unique();
 
