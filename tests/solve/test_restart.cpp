@@ -142,8 +142,10 @@ TEST_F(Restart, AutoFallsBackWhenItsFirstMethodIsMadeToFail) {
     EXPECT_FALSE(r.attempts.front().met);
     EXPECT_TRUE(r.attempts.back().met);
     EXPECT_NE(r.method, "linear");
+    // The residual (1e-12) bounds the error only up to the chain's conditioning,
+    // which grows with K: agreement to 1e-10 is what the method list promises.
     EXPECT_LT(max_abs_difference(gather(r), testing_support::mmck_closed_form(1, K, lambda, mu)),
-              1e-12);
+              1e-10);
 }
 
 } // namespace
