@@ -10,7 +10,8 @@
 #   ncd     100 blocks of 1,000 states, coupling 1e-4 (100,000 states)
 #   walk    random walk on a random graph, 100,000 nodes, average degree 6
 #   mmck    M/M/c/K with 20 servers and room for 20,000 (20,001 states, a long line)
-# Environment: LONGRUN_METHODS_RANKS (default 1), LONGRUN_METHODS_LIST (default all),
+# Environment: LONGRUN_METHODS_RANKS (default 1), LONGRUN_METHODS_LIST (default every
+# method, fastest-measured first),
 # LONGRUN_METHODS_BUDGET (seconds per chain, default 600: a method still running at
 # the budget finishes, later ones are skipped rows). Iteration caps for the slow
 # classical methods are passed as PETSc options (see below) so that one chain
@@ -23,7 +24,7 @@ python=/usr/bin/python3
 build="${1:-build}"
 work="${2:-$(mktemp -d "${TMPDIR:-/tmp}/longrun-methods.XXXXXX")}"
 ranks="${LONGRUN_METHODS_RANKS:-1}"
-methods="${LONGRUN_METHODS_LIST:-all}"
+methods="${LONGRUN_METHODS_LIST:-aggregation,linear,direct,shift-invert,eigen,gauss-seidel,power,gth}"
 budget="${LONGRUN_METHODS_BUDGET:-600}"
 
 # shellcheck source=benchmarks/bench_common.sh
@@ -31,6 +32,7 @@ source "$(dirname "${BASH_SOURCE[0]}")/bench_common.sh"
 require_binaries
 mkdir -p "$work"
 work="$(cd "$work" && pwd)"
+cores="$(nproc)" # before OMP_NUM_THREADS, which nproc honours
 export OMP_NUM_THREADS=1
 
 run() { # quietly, with mpirun when more than one rank
@@ -48,13 +50,14 @@ declare -A chains=(
     [walk]="graph-walk --nodes 100000 --degree 6"
     [mmck]="mmck --servers 20 --capacity 20000 --arrival 19 --service 1"
 )
-caps=(-power_max_it 200000 -gs_max_it 20000 -eigen_eps_max_it 5000 -shift_eps_max_it 200)
+caps=(-power_max_it 200000 -gs_max_it 20000 -eigen_eps_max_it 5000 -shift_eps_max_it 200
+    -linear_ksp_max_it 2000)
 
 {
     echo "# Methods side by side ($(date -u +%Y-%m-%dT%H:%MZ), $ranks rank(s))"
     echo
     echo "Command: \`$0 $*\`; commit $(git -C "$here/.." rev-parse --short HEAD 2> /dev/null || echo unknown)"
-    echo "Machine: $(nproc) cores, $(grep -m1 '^model name' /proc/cpuinfo | cut -d: -f2- | sed 's/^ *//')"
+    echo "Machine: $cores cores, $(grep -m1 '^model name' /proc/cpuinfo | cut -d: -f2- | sed 's/^ *//')"
 } > "$work/methods.md"
 
 for name in tandem ncd walk mmck; do

@@ -52,9 +52,7 @@ int compare_command(MPI_Comm comm, CompareOptions& o) {
             throw UsageError("chain '" + r.chains[i] + "' is given twice");
     if (!o.kind.empty())
         r.kind = io::parse_kind(o.kind);
-    r.preconditioner = o.preconditioner == "ilu"  ? solve::LinearPreconditioner::ilu
-                       : o.preconditioner == "lu" ? solve::LinearPreconditioner::lu
-                                                  : solve::LinearPreconditioner::amg;
+    r.preconditioner = solve::preconditioner_named(o.preconditioner);
     r.progress = !o.quiet;
     const std::vector<std::string> plot_files =
         o.plot.empty() ? std::vector<std::string>{} : plot_names(o.plot, r.chains);
@@ -164,9 +162,10 @@ Action add_compare(CLI::App& app) {
         ->default_val(0)
         ->check(CLI::NonNegativeNumber);
     sub->add_option("--preconditioner", o->preconditioner,
-                    "for linear: amg (hypre BoomerAMG), ilu (block-Jacobi/ILU(0)), lu (MUMPS)")
+                    "for linear: amg (hypre BoomerAMG), ilu (block-Jacobi/ILU(0)), asm (additive "
+                    "Schwarz, ILU(0) on overlapping blocks), lu (MUMPS)")
         ->default_val("amg")
-        ->check(CLI::IsMember({"amg", "ilu", "lu"}));
+        ->check(CLI::IsMember({"amg", "ilu", "asm", "lu"}));
     sub->add_option("--timing-products", o->request.timing_products,
                     "products timed per chain to measure one product's time")
         ->default_val(10)

@@ -33,9 +33,7 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
         require_writable_folder(o.output);
         o.request.output = o.output;
     }
-    o.request.preconditioner = o.preconditioner == "ilu"  ? solve::LinearPreconditioner::ilu
-                               : o.preconditioner == "lu" ? solve::LinearPreconditioner::lu
-                                                          : solve::LinearPreconditioner::amg;
+    o.request.preconditioner = solve::preconditioner_named(o.preconditioner);
     o.request.progress = !o.quiet;
     if ((o.start_state || o.start_distribution) && !o.request.per_class)
         throw UsageError("--from and --from-distribution go with --per-class");
@@ -116,9 +114,10 @@ Action add_solve(CLI::App& app) {
         ->default_val(1e-10)
         ->check(CLI::PositiveNumber);
     sub->add_option("--preconditioner", o->preconditioner,
-                    "for linear: amg (hypre BoomerAMG), ilu (block-Jacobi/ILU(0)), lu (MUMPS)")
+                    "for linear: amg (hypre BoomerAMG), ilu (block-Jacobi/ILU(0)), asm (additive "
+                    "Schwarz, ILU(0) on overlapping blocks), lu (MUMPS)")
         ->default_val("amg")
-        ->check(CLI::IsMember({"amg", "ilu", "lu"}));
+        ->check(CLI::IsMember({"amg", "ilu", "asm", "lu"}));
     add_validation_options(sub, o->request.validation);
     sub->add_flag("--no-analysis{false}", o->request.analyse_structure,
                   "skip the structure check (closed classes, period) that runs before solving; "

@@ -13,7 +13,15 @@
 
 namespace longrun::solve {
 
-enum class LinearPreconditioner { amg, ilu, lu };
+enum class LinearPreconditioner { amg, ilu, asm_ilu, lu };
+
+// "amg", "ilu", "asm" or "lu"; anything else is amg (the CLI checks the name).
+inline LinearPreconditioner preconditioner_named(const std::string& name) {
+    return name == "ilu"   ? LinearPreconditioner::ilu
+           : name == "asm" ? LinearPreconditioner::asm_ilu
+           : name == "lu"  ? LinearPreconditioner::lu
+                           : LinearPreconditioner::amg;
+}
 
 // Where methods hand their current iterate, for checkpoints. Both calls are
 // collective: due() returns the same answer on every rank (rank 0's clock

@@ -105,6 +105,9 @@ void configure_preconditioner(PC pc, LinearPreconditioner kind) {
     case LinearPreconditioner::ilu:
         check(PCSetType(pc, PCBJACOBI), "PCSetType(bjacobi)"); // ILU(0) on each block
         break;
+    case LinearPreconditioner::asm_ilu:
+        check(PCSetType(pc, PCASM), "PCSetType(asm)"); // overlap 1, ILU(0) on each block
+        break;
     case LinearPreconditioner::lu:
         check(PCSetType(pc, PCLU), "PCSetType(lu)");
 #if defined(PETSC_HAVE_MUMPS)

@@ -53,28 +53,39 @@ std::uint64_t direct_memory_estimate(const ChainTraits& t) {
     return t.states * 3200ULL / std::max(1, t.ranks);
 }
 
-// The decision rule of `auto`; README "How auto chooses" states the evidence.
+// The decision rule of `auto`; README "How auto chooses" gives the evidence
+// (benchmarks/RESULTS.md, "Methods side by side"). Power and Gauss-Seidel are
+// never chosen: they were the slowest everywhere measured.
 std::vector<std::string> auto_plan(const ChainTraits& t, std::string& why) {
     constexpr std::uint64_t exact_limit = 2000;
-    if (t.states <= exact_limit) {
-        why = fmt::format("{} states <= {}: exact elimination first", t.states, exact_limit);
-        return {"gth", "direct", "linear", "eigen"};
-    }
-    std::vector<std::string> plan;
-    if (t.nearly_decomposable) {
-        why = "weakly coupled blocks suspected: aggregation first";
-        plan = {"aggregation", "shift-invert", "linear", "eigen"};
-    } else {
-        why = "linear first (fastest measured on the benchmark families)";
-        plan = {"linear", "aggregation", "eigen"};
-    }
     const bool direct_fits = t.memory_per_rank_bytes == 0
                                  ? t.states <= 200000
                                  : direct_memory_estimate(t) < t.memory_per_rank_bytes / 2;
-    if (direct_fits && t.states <= 2000000)
-        plan.insert(plan.end() - 1, "direct");
-    else
-        why += "; direct skipped (memory estimate too large)";
+    if (t.states <= exact_limit) {
+        why = fmt::format("{} states <= {}: exact elimination first", t.states, exact_limit);
+        return {"gth", "direct", "aggregation", "linear", "eigen"};
+    }
+    std::vector<std::string> plan;
+    if (t.nearly_decomposable) {
+        // Krylov methods stall on the cluster of eigenvalues near the stationary
+        // one (linear needed 3,600 iterations on a 10^4-state block chain);
+        // aggregation and factorisations do not care.
+        why = "nearly decomposable (weakly coupled blocks): aggregation first, then "
+              "factorisations; Krylov methods last";
+        plan = {"aggregation"};
+        if (direct_fits)
+            plan.insert(plan.end(), {"direct", "shift-invert"});
+        plan.insert(plan.end(), {"linear", "eigen"});
+    } else {
+        why = "aggregation first (fastest measured on grids, queues and graph walks), then "
+              "GMRES + AMG";
+        plan = {"aggregation", "linear"};
+        if (direct_fits)
+            plan.push_back("direct");
+        plan.push_back("eigen");
+    }
+    if (!direct_fits)
+        why += "; sparse LU skipped (memory estimate too large)";
     return plan;
 }
 

@@ -8,7 +8,7 @@ Usage: help_text.py main|solve|convert
            how PETSc options are passed, and an example command line; and two
            of the documented codes are held against the binary's behaviour
            (1: unknown option, 2: missing input file)
-  solve    the methods auto, linear and eigen, the certificate, --tol, --json,
+  solve    every method, checkpoints and resuming, the certificate, --tol, --json,
            examples for one rank and for mpirun
   convert  both directions with examples, --kind and --renormalize
 """
@@ -37,6 +37,11 @@ EXPECTED = {
         r"\bauto\b",
         r"\blinear\b.*GMRES",
         r"\beigen\b.*Krylov-Schur",
+        r"\baggregation\b.*aggregation-disaggregation",
+        r"\bdirect\b.*MUMPS",
+        r"\bgth\b",
+        r"--checkpoint\b",
+        r"--resume\b",
         r"--method",
         r"--tol\b",
         r"certificate",

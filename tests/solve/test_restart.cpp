@@ -1,11 +1,13 @@
 // Warm starts, checkpoints and resumption, and auto's fallback when its first
 // method is made to fail. MPI: 1, 2 and 3 ranks.
 #include "io/error.hpp"
+#include "solve/strategy.hpp"
 #include "support/mpi_fixture.hpp"
 #include "support/test_chains.hpp"
 
 #include <petscsys.h>
 
+#include <algorithm>
 #include <filesystem>
 
 namespace longrun {
@@ -83,6 +85,24 @@ TEST_F(Restart, ResumingFromACheckpointGivesTheUninterruptedAnswer) {
     EXPECT_LT(max_abs_difference(gather(r), whole), 1e-11);
 }
 
+// Every preconditioner of `linear` reaches the same certified answer (GTH on the
+// same small tandem line is the reference, as in test_methods).
+TEST_F(Restart, EveryLinearPreconditionerGivesTheSameAnswer) {
+    const auto chain = testing_support::tandem(20, 15, 1.0, 1.1, 1.2);
+    const auto path = write(chain, "tandem.h5");
+    std::vector<double> reference;
+    for (const auto* name : {"amg", "ilu", "asm", "lu"}) {
+        auto r = request(path);
+        r.preconditioner = solve::preconditioner_named(name);
+        const cli::SolveReport report = cli::run_solve(MPI_COMM_WORLD, r);
+        ASSERT_TRUE(report.certificate.meets(1e-12)) << name;
+        const auto pi = gather(report);
+        if (reference.empty())
+            reference = pi;
+        EXPECT_LT(max_abs_difference(pi, reference), 1e-11) << name;
+    }
+}
+
 TEST_F(Restart, ResumeWithoutACheckpointStartsAfreshAndWritesOne) {
     const auto path = write(testing_support::tandem(30, 30, 1.0, 1.1, 1.2), "tandem.h5");
     auto r = request(path);
@@ -127,25 +147,78 @@ TEST_F(Restart, CheckpointOfAnotherChainIsRefusedAsBadInput) {
               static_cast<int>(ExitCode::bad_input));
 }
 
-TEST_F(Restart, AutoFallsBackWhenItsFirstMethodIsMadeToFail) {
-    // M/M/1/K with K = 2,500 (over auto's limit for exact elimination, so linear
-    // comes first); checked against the closed form (Gross & Harris, Fundamentals
-    // of Queueing Theory, M/M/c/K with c = 1).
+TEST_F(Restart, AutoFallsBackWhenItsFirstMethodsAreMadeToFail) {
+    // M/M/1/K with K = 2,500 (over auto's limit for exact elimination, so
+    // aggregation comes first, then linear); checked against the closed form
+    // (Gross & Harris, Fundamentals of Queueing Theory, M/M/c/K with c = 1).
     const int K = 2500;
     const double lambda = 0.9, mu = 1.0;
     const auto path = write(testing_support::birth_death(1, K, lambda, mu), "mm1k.h5");
-    ScopedOptions broken(
-        {{"-linear_pc_type", "none"}, {"-linear_pc_type", "none"}, {"-linear_ksp_max_it", "1"}});
+    ScopedOptions broken({{"-aggregation_max_cycles", "1"},
+                          {"-linear_pc_type", "none"},
+                          {"-linear_ksp_max_it", "1"}});
     const cli::SolveReport r = cli::run_solve(MPI_COMM_WORLD, request(path, "auto"));
-    ASSERT_GE(r.attempts.size(), 2u);
-    EXPECT_EQ(r.attempts.front().method, "linear");
-    EXPECT_FALSE(r.attempts.front().met);
+    ASSERT_GE(r.attempts.size(), 3u);
+    EXPECT_EQ(r.attempts[0].method, "aggregation");
+    EXPECT_FALSE(r.attempts[0].met);
+    EXPECT_EQ(r.attempts[1].method, "linear");
+    EXPECT_FALSE(r.attempts[1].met);
     EXPECT_TRUE(r.attempts.back().met);
+    EXPECT_NE(r.method, "aggregation");
     EXPECT_NE(r.method, "linear");
     // The residual (1e-12) bounds the error only up to the chain's conditioning,
     // which grows with K: agreement to 1e-10 is what the method list promises.
     EXPECT_LT(max_abs_difference(gather(r), testing_support::mmck_closed_form(1, K, lambda, mu)),
               1e-10);
+}
+
+} // namespace
+} // namespace longrun
+
+namespace longrun {
+namespace {
+
+// The decision rule itself (README, "How auto chooses").
+TEST(AutoPlan, SmallChainsStartWithExactElimination) {
+    solve::ChainTraits t;
+    t.states = 500;
+    EXPECT_EQ(solve::plan_for("auto", t).front(), "gth");
+}
+
+TEST(AutoPlan, LargeChainsStartWithAggregationAndEndWithEigen) {
+    solve::ChainTraits t;
+    t.states = 1'000'000;
+    t.memory_per_rank_bytes = 24ull << 30;
+    const auto plan = solve::plan_for("auto", t);
+    EXPECT_EQ(plan.front(), "aggregation");
+    EXPECT_EQ(plan.back(), "eigen");
+    EXPECT_NE(std::find(plan.begin(), plan.end(), "direct"), plan.end());
+}
+
+TEST(AutoPlan, NoSparseLuWhenTheMemoryEstimateIsTooLarge) {
+    solve::ChainTraits t;
+    t.states = 1'000'000;
+    t.memory_per_rank_bytes = 1ull << 30;
+    std::string why;
+    const auto plan = solve::plan_for("auto", t, &why);
+    EXPECT_EQ(std::find(plan.begin(), plan.end(), "direct"), plan.end());
+    EXPECT_NE(why.find("skipped"), std::string::npos) << why;
+}
+
+TEST(AutoPlan, NearlyDecomposableChainsPutKrylovMethodsLast) {
+    solve::ChainTraits t;
+    t.states = 100'000;
+    t.nearly_decomposable = true;
+    const auto plan = solve::plan_for("auto", t);
+    ASSERT_GE(plan.size(), 3u);
+    EXPECT_EQ(plan.front(), "aggregation");
+    EXPECT_EQ(plan[plan.size() - 2], "linear");
+    EXPECT_EQ(plan.back(), "eigen");
+}
+
+TEST(AutoPlan, ListsAreTriedInTheGivenOrderAndUnknownNamesRefused) {
+    EXPECT_EQ(solve::plan_for("direct,linear", {}), (std::vector<std::string>{"direct", "linear"}));
+    EXPECT_THROW(solve::plan_for("linear,fastest", {}), UsageError);
 }
 
 } // namespace
