@@ -24,7 +24,7 @@ python=/usr/bin/python3
 build="${1:-build}"
 work="${2:-$(mktemp -d "${TMPDIR:-/tmp}/longrun-methods.XXXXXX")}"
 ranks="${LONGRUN_METHODS_RANKS:-1}"
-methods="${LONGRUN_METHODS_LIST:-aggregation,linear,direct,shift-invert,eigen,gauss-seidel,power,gth}"
+methods="${LONGRUN_METHODS_LIST:-aggregation,direct,shift-invert,linear,eigen,gauss-seidel,power,gth}"
 budget="${LONGRUN_METHODS_BUDGET:-600}"
 
 # shellcheck source=benchmarks/bench_common.sh
@@ -50,8 +50,8 @@ declare -A chains=(
     [walk]="graph-walk --nodes 100000 --degree 6"
     [mmck]="mmck --servers 20 --capacity 20000 --arrival 19 --service 1"
 )
-caps=(-power_max_it 200000 -gs_max_it 20000 -eigen_eps_max_it 5000 -shift_eps_max_it 200
-    -linear_ksp_max_it 2000)
+caps=(-power_max_it 200000 -gs_max_it 20000 -eigen_eps_max_it 1000 -shift_eps_max_it 200
+    -linear_ksp_max_it 500)
 
 {
     echo "# Methods side by side ($(date -u +%Y-%m-%dT%H:%MZ), $ranks rank(s))"
