@@ -2,6 +2,7 @@
 
 #include "chain_input.hpp"
 #include "matrix_market_kind.hpp"
+#include "solve_pipeline.hpp"
 #include "structure_report.hpp"
 
 #include "analysis/structure.hpp"
@@ -237,20 +238,10 @@ CompareReport run_compare(MPI_Comm comm, const CompareRequest& request) {
         settings.tolerance = request.tolerance;
         settings.preconditioner = request.preconditioner;
         settings.progress = &progress;
-        solve::StateCoordinates coordinates;
-        for (const auto& v : chain.variables)
-            if (v.integral) {
-                coordinates.names.push_back(v.name);
-                coordinates.values.emplace_back(v.values.begin(), v.values.end());
-            }
+        const solve::StateCoordinates coordinates = coordinates_of(chain);
         settings.coordinates = &coordinates;
-        solve::ChainTraits traits;
-        traits.states = chain.states;
-        traits.transitions = chain.transitions;
-        traits.time = rows.time;
-        traits.ranks = report.ranks;
-        if (!structure.closed.empty())
-            traits.period = structure.closed.front().period;
+        const solve::ChainTraits traits = traits_of(comm, chain, rows.time, &structure);
+        settings.memory_limit_bytes = traits.memory_per_rank_bytes * 8 / 10;
 
         for (const auto& method : request.methods) {
             const bool over =

@@ -306,6 +306,31 @@ void check_truncation(const io::StateVariable& v, const summary::Marginal& m, do
 
 } // namespace
 
+solve::StateCoordinates coordinates_of(const io::Chain& chain) {
+    solve::StateCoordinates coordinates;
+    for (const auto& v : chain.variables)
+        if (v.integral) {
+            coordinates.names.push_back(v.name);
+            coordinates.values.emplace_back(v.values.begin(), v.values.end());
+        }
+    return coordinates;
+}
+
+solve::ChainTraits traits_of(MPI_Comm comm, const io::Chain& chain, solve::TimeModel time,
+                             const analysis::Structure* structure) {
+    solve::ChainTraits traits;
+    traits.states = chain.states;
+    traits.transitions = chain.transitions;
+    traits.time = time;
+    traits.ranks = comm_size(comm);
+    if (structure && !structure->closed.empty()) {
+        traits.period = structure->closed.front().period;
+        traits.nearly_decomposable = structure->nearly_decomposable();
+    }
+    traits.memory_per_rank_bytes = available_memory_per_rank(comm);
+    return traits;
+}
+
 SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     const auto start = std::chrono::steady_clock::now();
     solve::Progress progress(comm, request.progress);
@@ -358,23 +383,10 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     settings.tolerance = request.tolerance;
     settings.preconditioner = request.preconditioner;
     settings.progress = &progress;
-    solve::StateCoordinates coordinates;
-    for (const auto& v : chain.variables)
-        if (v.integral) {
-            coordinates.names.push_back(v.name);
-            coordinates.values.emplace_back(v.values.begin(), v.values.end());
-        }
+    const solve::StateCoordinates coordinates = coordinates_of(chain);
     settings.coordinates = &coordinates;
-    solve::ChainTraits traits;
-    traits.states = chain.states;
-    traits.transitions = chain.transitions;
-    traits.time = rows.time;
-    traits.ranks = report.ranks;
-    if (report.structure && !report.structure->closed.empty()) {
-        traits.period = report.structure->closed.front().period;
-        traits.nearly_decomposable = report.structure->nearly_decomposable();
-    }
-    traits.memory_per_rank_bytes = available_memory_per_rank(comm);
+    const solve::ChainTraits traits =
+        traits_of(comm, chain, rows.time, report.structure ? &*report.structure : nullptr);
     // Methods with a large fixed cost (dense elimination, sparse LU) decline beyond
     // this instead of being killed by the kernel halfway; keep room for the rest.
     settings.memory_limit_bytes = traits.memory_per_rank_bytes * 8 / 10;

@@ -104,6 +104,14 @@ struct SolveReport {
     std::vector<double> local_pi; // this rank's entries of the distribution
 };
 
+// The integer state variables of this rank's rows, for methods that group states.
+solve::StateCoordinates coordinates_of(const io::Chain& chain);
+
+// What auto looks at: size, kind, ranks, the analysis (period, near
+// decomposability; may be null) and the memory per rank (collective).
+solve::ChainTraits traits_of(MPI_Comm comm, const io::Chain& chain, solve::TimeModel time,
+                             const analysis::Structure* structure);
+
 // Collective. Throws NumericalError (exit 4) when no method met the certificate;
 // nothing is written then.
 SolveReport run_solve(MPI_Comm comm, const SolveRequest& request);

@@ -7,6 +7,7 @@
 // non-singular. Pinning a state of tiny probability scales the system badly and
 // makes the solver's own residual meaningless, so the pin is the largest entry
 // of the best estimate so far, never a fixed state.
+#include "iterate_start.hpp"
 #include "method.hpp"
 
 #include <fmt/format.h>
@@ -36,45 +37,6 @@ PetscErrorCode monitor(KSP ksp, PetscInt it, PetscReal rnorm, void* raw) {
         ctx->settings->checkpoint->save(current, "linear", ctx->base_iteration + it);
     }
     return 0;
-}
-
-// Index and value of the largest entry (collective).
-std::pair<PetscInt, double> argmax(Vec x) {
-    PetscInt at = 0;
-    PetscReal value = 0;
-    check(VecMax(x, &at, &value), "VecMax");
-    return {at, value};
-}
-
-// A cheap guess at where the mass is: a few steps of the lazy uniformised chain
-// from the uniform vector. Needs only products with A.
-VecHandle rough_estimate(const TransposedChain& a, int steps) {
-    VecHandle x = create_state_vector(a), y = create_state_vector(a);
-    check(VecSet(x, 1.0 / a.states), "VecSet");
-    const double scale = 0.5 / a.uniformisation; // lazy: (I + P)/2, P = I + Q/lambda
-    for (int k = 0; k < steps; ++k) {
-        check(MatMult(a.matrix, x, y), "MatMult");
-        if (a.time == TimeModel::continuous) // x <- x + Q^T x / (2 lambda)
-            check(VecAXPY(x, scale, y), "VecAXPY");
-        else // x <- (x + P^T x) / 2
-            check(VecAXPBY(x, 0.5, 0.5, y), "VecAXPBY");
-    }
-    return x;
-}
-
-double value_at(Vec x, PetscInt index) {
-    PetscInt lo = 0, hi = 0;
-    check(VecGetOwnershipRange(x, &lo, &hi), "VecGetOwnershipRange");
-    double mine = 0;
-    if (index >= lo && index < hi) {
-        const PetscScalar* v = nullptr;
-        check(VecGetArrayRead(x, &v), "VecGetArrayRead");
-        mine = v[index - lo];
-        check(VecRestoreArrayRead(x, &v), "VecRestoreArrayRead");
-    }
-    double all = 0;
-    MPI_Allreduce(&mine, &all, 1, MPI_DOUBLE, MPI_SUM, PetscObjectComm((PetscObject)x));
-    return all;
 }
 
 void configure_preconditioner(PC pc, LinearPreconditioner kind) {
@@ -129,14 +91,14 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin, const Me
     VecHandle x = create_state_vector(a), b = create_state_vector(a);
     check(VecCopy(start, x), "VecCopy");
     if (pin >= 0) {
-        const double at_pin = value_at(x, pin);
+        const double at_pin = entry_at(x, pin);
         check(VecScale(x, 1.0 / at_pin), "VecScale"); // x_pin = 1 exactly
     }
     check(VecSet(b, 0.0), "VecSet");
     // The pinned row keeps the row's own scale, so that the system stays balanced.
     VecHandle diagonal = create_state_vector(a);
     check(MatGetDiagonal(m, diagonal), "MatGetDiagonal");
-    double d = pin >= 0 ? std::abs(value_at(diagonal, pin)) : 1.0;
+    double d = pin >= 0 ? std::abs(entry_at(diagonal, pin)) : 1.0;
     if (!(d > 0))
         d = 1;
     PetscInt lo = 0, hi = 0;
@@ -205,7 +167,9 @@ Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSetting
         start = create_state_vector(a);
         check(VecCopy(warm_start, start), "VecCopy");
     } else {
-        start = rough_estimate(a, 20);
+        // A cheap guess at where the mass is, from products with A only.
+        start = starting_iterate(a, nullptr);
+        lazy_steps(a, start, 20);
     }
     if (s.progress)
         s.progress->begin("linear", s.tolerance);
@@ -230,11 +194,11 @@ Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSetting
             check(VecCopy(attempt.x, start), "VecCopy");
     }
     // The pinned system, at the largest entry of the best estimate so far.
-    PetscInt pin = argmax(start).first;
+    PetscInt pin = largest_entry(start).first;
     if (given)
         pin = chosen;
     attempt.notes.push_back(
-        fmt::format("pinning state {} (estimated probability {:.2e})", pin, value_at(start, pin)));
+        fmt::format("pinning state {} (estimated probability {:.2e})", pin, entry_at(start, pin)));
     if (s.progress)
         s.progress->note("linear: " + attempt.notes.back());
     attempt = solve_pinned(a, start, pin, s, std::move(attempt));
