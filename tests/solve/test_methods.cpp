@@ -156,7 +156,7 @@ TEST_P(EveryMethod, RandomWalkOnAGraphIsProportionalToDegree) {
 
 INSTANTIATE_TEST_SUITE_P(Methods, EveryMethod,
                          ::testing::Values("power", "gauss-seidel", "direct", "shift-invert", "gth",
-                                           "linear", "eigen"),
+                                           "linear", "eigen", "aggregation"),
                          [](const auto& info) {
                              std::string name = info.param;
                              for (auto& c : name)
