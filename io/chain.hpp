@@ -7,6 +7,7 @@
 #include <cstdint>
 #include <optional>
 #include <string>
+#include <utility>
 #include <vector>
 
 namespace longrun::io {
@@ -42,6 +43,13 @@ struct Chain {
     std::vector<std::string> event_names;
     std::vector<StateVariable> variables;
     std::vector<Measure> measures;
+    // Written by `generate` (absent in chains from other tools): the model's
+    // parameters, and per event the rate (ctmc) or probability (dtmc) with which
+    // it fires in each state, firings that leave the state unchanged included
+    // (an arrival lost at a full queue), so that event rates need no labels.
+    std::vector<std::pair<std::string, double>> parameters;
+    std::vector<Measure> event_intensities; // Measure::name = event name
+    std::string model_file, model_text;     // the description it was generated from
 
     std::uint64_t local_rows() const noexcept { return rows.size(); }
     std::uint64_t local_transitions() const noexcept { return targets.size(); }

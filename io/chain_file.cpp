@@ -22,6 +22,36 @@ std::vector<std::string> group_members(hid_t group) {
     return names;
 }
 
+// Parameters are one attribute each, so their order is the attributes' order:
+// creation order where the group tracks it (as written here), else by name.
+std::vector<std::string> attribute_names(hid_t loc) {
+    H5_index_t index = H5_INDEX_NAME;
+    h5::Handle gcpl(H5Gget_create_plist(loc), H5Pclose);
+    unsigned flags = 0;
+    if (gcpl.valid() && H5Pget_attr_creation_order(gcpl, &flags) >= 0 &&
+        (flags & H5P_CRT_ORDER_INDEXED) != 0)
+        index = H5_INDEX_CRT_ORDER;
+    std::vector<std::string> names;
+    auto collect = [](hid_t, const char* name, const H5A_info_t*, void* out) -> herr_t {
+        static_cast<std::vector<std::string>*>(out)->emplace_back(name);
+        return 0;
+    };
+    hsize_t position = 0;
+    H5Aiterate2(loc, index, H5_ITER_INC, &position, collect, &names);
+    return names;
+}
+
+h5::Handle create_ordered_group(hid_t loc, const std::string& name, const std::string& file) {
+    h5::Handle gcpl(H5Pcreate(H5P_GROUP_CREATE), H5Pclose);
+    if (!gcpl.valid() ||
+        H5Pset_attr_creation_order(gcpl, H5P_CRT_ORDER_TRACKED | H5P_CRT_ORDER_INDEXED) < 0)
+        h5::fail(h5::Side::writing, file, "cannot set up group '" + name + "'");
+    h5::Handle g(H5Gcreate2(loc, name.c_str(), H5P_DEFAULT, gcpl, H5P_DEFAULT), H5Gclose);
+    if (!g.valid())
+        h5::fail(h5::Side::writing, file, "cannot create group '" + name + "'");
+    return g;
+}
+
 // Also requires every element to be stored: buffers are sized by these lengths,
 // so a length the file merely announces must not get that far.
 void require_length(hid_t d, const std::string& file, const std::string& name,
@@ -174,6 +204,36 @@ ChainHeader read_chain_header(const std::string& path, MPI_Comm comm) {
                     h.measures.push_back(name);
                 }
             }
+            if (h5::exists(f, "/events")) {
+                h5::Handle g = h5::open_group(f, "/events", path);
+                const std::vector<std::string> order =
+                    h5::has_attribute(g, "order")
+                        ? h5::read_string_list_attribute(g, "order", path, "/events")
+                        : group_members(g);
+                for (const auto& name : order) {
+                    const std::string ds = "/events/" + name;
+                    h5::Handle d = h5::open_dataset(f, ds, path);
+                    require_class(d, path, ds,
+                                  {h5::Numeric::floating, h5::Numeric::signed_integer,
+                                   h5::Numeric::unsigned_integer},
+                                  "numbers");
+                    require_length(d, path, ds, h.states, "one value per state");
+                    h.intensities.push_back(name);
+                }
+            }
+            if (h5::exists(f, "/model")) {
+                h5::Handle g = h5::open_group(f, "/model", path);
+                if (h5::has_attribute(g, "file"))
+                    h.model_file = h5::read_string_attribute(g, "file", path, "/model");
+                if (h5::has_attribute(g, "text"))
+                    h.model_text = h5::read_string_attribute(g, "text", path, "/model");
+                if (h5::exists(f, "/model/parameters")) {
+                    h5::Handle p = h5::open_group(f, "/model/parameters", path);
+                    for (const auto& name : attribute_names(p))
+                        h.parameters.emplace_back(
+                            name, h5::read_f64_attribute(p, name, path, "/model/parameters"));
+                }
+            }
         } catch (const Error& e) {
             fault = LocalFault{0, e.code(), e.what()};
         }
@@ -201,6 +261,16 @@ ChainHeader read_chain_header(const std::string& path, MPI_Comm comm) {
         put(std::to_string(h.measures.size()));
         for (auto& m : h.measures)
             put(m);
+        put(std::to_string(h.intensities.size()));
+        for (auto& e : h.intensities)
+            put(e);
+        put(h.model_file);
+        put(h.model_text);
+        put(std::to_string(h.parameters.size()));
+        for (auto& [name, value] : h.parameters) {
+            put(name);
+            put(fmt::format("{}", value)); // shortest text that reads back as the same double
+        }
     }
     unsigned long size = record.size();
     MPI_Bcast(&size, 1, MPI_UNSIGNED_LONG, 0, comm);
@@ -236,6 +306,16 @@ ChainHeader read_chain_header(const std::string& path, MPI_Comm comm) {
         const auto nm = std::stoull(get());
         for (std::uint64_t i = 0; i < nm; ++i)
             h.measures.push_back(get());
+        const auto ni = std::stoull(get());
+        for (std::uint64_t i = 0; i < ni; ++i)
+            h.intensities.push_back(get());
+        h.model_file = get();
+        h.model_text = get();
+        const auto np = std::stoull(get());
+        for (std::uint64_t i = 0; i < np; ++i) {
+            std::string name = get();
+            h.parameters.emplace_back(std::move(name), std::stod(get()));
+        }
     }
     return h;
 }
@@ -379,6 +459,16 @@ std::optional<LocalFault> validate_slice(Chain& c, const std::string& file,
                 return LocalFault{c.rows.begin + i, ExitCode::bad_input,
                                   row_prefix(file, "/states/" + v.name, c.rows.begin + i) +
                                       "value is not finite"};
+    for (const auto& e : c.event_intensities)
+        for (std::uint64_t i = 0; i < e.values.size(); ++i) {
+            const double x = e.values[i];
+            if (!std::isfinite(x) || x < 0)
+                return LocalFault{c.rows.begin + i, ExitCode::bad_input,
+                                  row_prefix(file, "/events/" + e.name, c.rows.begin + i) +
+                                      "intensity " + fmt_double(x) + " is " +
+                                      (std::isfinite(x) ? "negative" : "not finite") +
+                                      " (an event fires at a rate, or with a probability, >= 0)"};
+        }
     return std::nullopt;
 }
 
@@ -482,6 +572,14 @@ Chain read_chain_slice(const ChainHeader& h, RowRange rows, MPI_Comm comm,
         read_all("/measures/" + name, m.values, rows.begin, rows.size());
         c.measures.push_back(std::move(m));
     }
+    for (const auto& name : h.intensities) {
+        Measure m{name, {}};
+        read_all("/events/" + name, m.values, rows.begin, rows.size());
+        c.event_intensities.push_back(std::move(m));
+    }
+    c.parameters = h.parameters;
+    c.model_file = h.model_file;
+    c.model_text = h.model_text;
     agree_or_throw(comm, fault);
 
     ValidationReport local;
@@ -544,6 +642,25 @@ void write_chain_file(const std::string& path, const Chain& c, h5::Layout layout
             h5::Handle m = h5::create_group(f, "measures", file);
             for (const auto& meas : c.measures)
                 h5::write_whole(m, meas.name, meas.values, file, layout);
+        }
+        if (!c.event_intensities.empty()) {
+            h5::Handle e = h5::create_group(f, "events", file);
+            std::vector<std::string> order;
+            for (const auto& ev : c.event_intensities) {
+                order.push_back(ev.name);
+                h5::write_whole(e, ev.name, ev.values, file, layout);
+            }
+            h5::write_attribute(e, "order", order, file);
+        }
+        if (!c.model_file.empty() || !c.model_text.empty() || !c.parameters.empty()) {
+            h5::Handle m = h5::create_group(f, "model", file);
+            h5::write_attribute(m, "file", c.model_file, file);
+            h5::write_attribute(m, "text", c.model_text, file);
+            if (!c.parameters.empty()) {
+                h5::Handle p = create_ordered_group(m, "parameters", file);
+                for (const auto& [name, value] : c.parameters)
+                    h5::write_attribute(p, name, value, file);
+            }
         }
         if (f.close() < 0)
             h5::fail(h5::Side::writing, path, "cannot finish writing the file (disk full?)");

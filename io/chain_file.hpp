@@ -26,6 +26,10 @@ struct ChainHeader {
     bool has_events = false;
     std::vector<StateVariable> variables; // names, types and bounds; no values
     std::vector<std::string> measures;
+    std::vector<std::string> intensities; // /events/<name>, in the order they were written
+    // /model (from `generate`), small enough that every rank keeps a copy.
+    std::string model_file, model_text;
+    std::vector<std::pair<std::string, double>> parameters;
 };
 
 struct ValidationOptions {
@@ -47,7 +51,8 @@ ChainHeader read_chain_header(const std::string& path, MPI_Comm comm);
 // Collective: offsets[rows.begin .. rows.end] (rows.size() + 1 values, global).
 std::vector<std::uint64_t> read_offsets(const ChainHeader& header, RowRange rows, MPI_Comm comm);
 
-// Collective: the rows' CSR, events, state variables and measures, validated.
+// Collective: the rows' CSR, events, state variables, measures and event
+// intensities, validated; the /model parts are copied from the header.
 // Errors are agreed across ranks (the lowest offending row is reported).
 Chain read_chain_slice(const ChainHeader& header, RowRange rows, MPI_Comm comm,
                        const ValidationOptions& options, ValidationReport* report = nullptr);

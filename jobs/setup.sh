@@ -17,6 +17,7 @@ packages=(
   libyaml-cpp-dev libmuparser-dev
   libplplot-dev plplot-driver-cairo
   python3 python3-numpy python3-scipy python3-h5py
+  chromium chromium-driver python3-selenium
   clang-format clang-14 libclang-rt-14-dev
 )
 

@@ -20,5 +20,7 @@ Action add_solve(CLI::App& app);
 Action add_check(CLI::App& app);
 Action add_generate(CLI::App& app);
 Action add_compare(CLI::App& app);
+Action add_summarize(CLI::App& app);
+Action add_sweep(CLI::App& app);
 
 } // namespace longrun::cli

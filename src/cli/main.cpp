@@ -72,7 +72,8 @@ int main(int argc, char** argv) {
                    "PETSc/SLEPc options database file (one option per line)")
         ->check(CLI::ExistingFile);
     for (auto add : {longrun::cli::add_convert, longrun::cli::add_check, longrun::cli::add_solve,
-                     longrun::cli::add_generate, longrun::cli::add_compare}) {
+                     longrun::cli::add_generate, longrun::cli::add_compare,
+                     longrun::cli::add_summarize, longrun::cli::add_sweep}) {
         const auto before = app.get_subcommands({}).size();
         auto action = add(app);
         verbs.emplace_back(app.get_subcommands({})[before], std::move(action));

@@ -289,7 +289,7 @@ class Explorer {
     // Sizes, not capacities: reserve_up_front() asks for address space that
     // costs no memory until it is written.
     std::uint64_t held_bytes(const io::Chain& c) const {
-        return keys_.bytes() + lookup_bytes_ + c.offsets.size() * 8 +
+        return keys_.bytes() + lookup_bytes_ + c.offsets.size() * 8 * (1 + events_.size()) +
                c.targets.size() * bytes_per_transition;
     }
 
@@ -304,6 +304,8 @@ class Explorer {
         std::uint64_t transitions = states > by_budget / per_state ? by_budget : states * per_state;
         try {
             c.offsets.reserve(std::min<std::uint64_t>(states + 1, budget_ / 8));
+            for (auto& e : c.event_intensities)
+                e.values.reserve(std::min<std::uint64_t>(states, budget_ / 8));
             c.targets.reserve(transitions);
             c.weights.reserve(transitions);
             c.events.reserve(transitions);
@@ -342,8 +344,10 @@ class Explorer {
             return;
         const std::size_t cap = std::max<std::size_t>(c.offsets.capacity() * 3 / 2, 1 << 16);
         arrays_bytes_ = held_bytes(c) - keys_.bytes() - lookup_bytes_;
-        check_budget(cap * 8, "the row offsets");
+        check_budget(cap * 8 * (1 + events_.size()), "the row offsets and event intensities");
         c.offsets.reserve(cap);
+        for (auto& e : c.event_intensities)
+            e.values.reserve(cap);
         arrays_bytes_ = held_bytes(c) - keys_.bytes() - lookup_bytes_;
     }
 
@@ -363,10 +367,16 @@ class Explorer {
         std::vector<double> new_values(nv);
         std::vector<Entry> row;
         row.reserve(events_.size() + 1);
+        // Per state the rate (probability) of every event, self-loops included:
+        // what the chain's transitions alone cannot tell (a lost arrival).
+        chain.event_intensities.assign(events_.size(), {});
+        for (std::size_t e = 0; e < events_.size(); ++e)
+            chain.event_intensities[e].name = m_.events[e].name;
         reserve_up_front(chain);
         chain.offsets.clear();
         chain.offsets.push_back(0);
 
+        std::uint64_t intensity_rows = 0;
         bool inserted = false;
         keys_.push_back(pack(m_.start));
         index.find_or_insert(keys_[0], 0, inserted);
@@ -377,6 +387,8 @@ class Explorer {
             unpack(key, values);
             row.clear();
             double row_sum = 0;
+            if (s == intensity_rows)
+                intensity_rows = extend_intensities(chain, s);
             for (std::size_t e = 0; e < events_.size(); ++e) {
                 const auto& ev = events_[e];
                 if (ev.guard && (*ev.guard)() == 0)
@@ -398,6 +410,7 @@ class Explorer {
                         strides_[v];
                 }
                 row_sum += w;
+                chain.event_intensities[e].values[s] = w;
                 if (target_key == key && ctmc) {
                     ++report_.dropped_self_loops;
                     continue;
@@ -426,6 +439,20 @@ class Explorer {
             }
         }
         lookup_bytes_ = 0;
+    }
+
+    // Zeros a block of rows ahead, so that a firing costs one store and a state
+    // no per-event work; finish() trims the block's unused end.
+    std::uint64_t extend_intensities(io::Chain& c, std::uint64_t expanded) {
+        constexpr std::uint64_t block = 4096;
+        if (c.event_intensities.empty())
+            return ~std::uint64_t{0};
+        // Within the capacity reserved: growing past it would copy every array.
+        const std::uint64_t reserved = c.event_intensities.front().values.capacity();
+        const std::uint64_t rows = std::max(expanded + 1, std::min(expanded + block, reserved));
+        for (auto& e : c.event_intensities)
+            e.values.resize(rows, 0.0);
+        return rows;
     }
 
     void maybe_progress(std::uint64_t expanded) {
@@ -524,6 +551,8 @@ class Explorer {
                         l = label;
         }
 
+        for (auto& e : c.event_intensities)
+            e.values.resize(n);
         arrays_bytes_ = held_bytes(c) - keys_.bytes();
         check_budget(n * 8 * (m_.variables.size() + m_.measures.size() + 1),
                      "the state variables and measures");
@@ -556,6 +585,12 @@ class Explorer {
             }
         }
         keys_.clear();
+
+        c.parameters.clear();
+        for (const auto& p : m_.parameters)
+            c.parameters.emplace_back(p.name, p.value);
+        c.model_file = m_.file;
+        c.model_text = m_.text;
     }
 };
 
@@ -575,9 +610,10 @@ std::uint64_t available_memory_bytes() {
 }
 
 std::uint64_t bytes_per_state(const Model& m) {
-    // keys 8, lookup up to 32 while a hash table grows, offsets 8, and at the
-    // end one double per variable and measure plus the writer's integer copy.
-    return 8 + 32 + 8 + 8 * (m.variables.size() + m.measures.size() + 1) +
+    // keys 8, lookup up to 32 while a hash table grows, offsets 8, one double
+    // per event (its intensity), and at the end one double per variable and
+    // measure plus the writer's integer copy.
+    return 8 + 32 + 8 + 8 * (m.variables.size() + m.measures.size() + m.events.size() + 1) +
            bytes_per_transition * (m.events.size() + 1);
 }
 

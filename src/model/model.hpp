@@ -62,6 +62,7 @@ enum class Leftover { refuse, stay };
 
 struct Model {
     std::string file;
+    std::string text; // the description as written, stored with the chain it generates
     io::ChainKind kind = io::ChainKind::ctmc;
     std::vector<Parameter> parameters; // values final: overrides and derived values applied
     std::vector<Variable> variables;   // in declared order: the packing and /states order

@@ -322,7 +322,9 @@ Model parse_model(const std::string& yaml_text, const std::string& file_name,
         throw InputError(w.prefix() + "not valid YAML: " + e.msg);
     }
     try {
-        return Reader(file_name, overrides).read(root);
+        Model m = Reader(file_name, overrides).read(root);
+        m.text = yaml_text;
+        return m;
     } catch (const YAML::Exception& e) {
         const Where w{file_name, e.mark.is_null() ? 0 : e.mark.line + 1};
         throw InputError(w.prefix() + e.msg);

@@ -1,0 +1,213 @@
+#include "summary_output.hpp"
+
+#include <fmt/format.h>
+#include <fmt/ranges.h>
+
+#include <cmath>
+
+namespace longrun::cli {
+
+namespace {
+
+std::string value_text(double v, bool integral) {
+    if (integral && std::abs(v) < 1e15)
+        return fmt::format("{}", static_cast<long long>(v));
+    return fmt::format("{:.6g}", v);
+}
+
+std::string percent(double level) {
+    return fmt::format("{:g}%", level * 100);
+}
+
+// Where the tail first drops below 1e-1, 1e-2, ...: the few thresholds worth a look.
+std::string tail_text(const io::MeasureRecord& m) {
+    std::string out;
+    double last = std::nan("");
+    for (double level : {1e-1, 1e-2, 1e-3, 1e-6, 1e-9})
+        for (std::size_t i = 0; i < m.values.size(); ++i)
+            if (m.tail[i] <= level) {
+                if (m.values[i] != last)
+                    out += fmt::format("  P(>={})={:.2e}", value_text(m.values[i], m.integral),
+                                       m.tail[i]);
+                last = m.values[i];
+                break;
+            }
+    return out;
+}
+
+} // namespace
+
+std::string quantile_label(double level) {
+    return fmt::format("q{:g}", level);
+}
+
+std::string summary_text(const SummaryReport& r) {
+    std::string t;
+    t += fmt::format("result       {}\n", r.result_path);
+    t += fmt::format("chain        {}: {}, {} states, {} transitions\n", r.chain_path, r.kind,
+                     r.states, r.transitions);
+    if (!r.parameters.empty()) {
+        std::vector<std::string> ps;
+        for (const auto& [name, value] : r.parameters)
+            ps.push_back(fmt::format("{}={:g}", name, value));
+        t += fmt::format("parameters   {}\n", fmt::join(ps, ", "));
+    }
+    t += fmt::format("certificate  {} = {:.2e} <= {:.1e} ({}, {} iterations)\n",
+                     r.solve.residual_definition.empty() ? "residual" : r.solve.residual_definition,
+                     r.solve.residual, r.solve.tolerance, r.solve.method, r.solve.iterations);
+
+    const auto& measures = r.summary.measures;
+    if (!measures.empty()) {
+        t += fmt::format("\n{:<14} {:>12} {:>12}", "measure", "mean", "std");
+        for (double level : r.default_levels)
+            t += fmt::format(" {:>9}", percent(level));
+        t += "   tail mass\n";
+        for (const auto& m : measures) {
+            t += fmt::format("{:<14} {:>12.6g} {:>12.6g}", m.name, m.mean, m.std);
+            for (double level : r.default_levels) {
+                std::string cell = "-";
+                for (const auto& q : m.quantiles)
+                    if (q.level == level)
+                        cell = value_text(q.value, m.integral);
+                t += fmt::format(" {:>9}", cell);
+            }
+            t += tail_text(m) + "\n";
+        }
+        // Levels asked for beyond the standard ones, and conditional means.
+        for (const auto& m : measures) {
+            for (const auto& q : m.quantiles)
+                if (std::find(r.default_levels.begin(), r.default_levels.end(), q.level) ==
+                    r.default_levels.end())
+                    t += fmt::format("  {} quantile {}: {}\n", m.name, percent(q.level),
+                                     value_text(q.value, m.integral));
+            for (const auto& g : m.given)
+                t += g.mean ? fmt::format("  E[{} | {}] = {:.6g}   (P({}) = {:.4g})\n", m.name,
+                                          g.condition, *g.mean, g.condition, g.probability)
+                            : fmt::format("  E[{} | {}] undefined: P({}) = 0\n", m.name,
+                                          g.condition, g.condition);
+        }
+    }
+    if (!r.summary.probabilities.empty()) {
+        t += "\nprobability\n";
+        for (const auto& p : r.summary.probabilities)
+            t += p.name == p.condition ? fmt::format("  P({}) = {:.6e}\n", p.name, p.probability)
+                                       : fmt::format("  P({}) = P({}) = {:.6e}\n", p.name,
+                                                     p.condition, p.probability);
+    }
+    if (!r.summary.events.empty()) {
+        t += fmt::format("\nevent rates ({})\n", r.summary.rate_unit);
+        for (const auto& e : r.summary.events)
+            t += e.expression.empty()
+                     ? fmt::format("  {:<14} {:.6e}\n", e.name, e.rate)
+                     : fmt::format("  {:<14} {:.6e}   = {}\n", e.name, e.rate, e.expression);
+    }
+    if (!r.summary.likely_states.empty()) {
+        t += fmt::format("\nmost likely states\n");
+        for (const auto& s : r.summary.likely_states) {
+            std::vector<std::string> vars;
+            for (const auto& [name, value] : s.variables)
+                vars.push_back(fmt::format("{}={:g}", name, value));
+            t +=
+                fmt::format("  {:>12}  {:.6e}  {}\n", s.index, s.probability, fmt::join(vars, " "));
+        }
+    }
+    for (const auto& w : r.warnings)
+        t += fmt::format("\nwarning: {}\n", w);
+    t += fmt::format("\n{}\n", safety_caution);
+    return t;
+}
+
+nlohmann::json summary_json(const SummaryReport& r) {
+    nlohmann::json j;
+    j["result"] = r.result_path;
+    j["chain"] = {{"path", r.chain_path},
+                  {"kind", r.kind},
+                  {"states", r.states},
+                  {"transitions", r.transitions}};
+    nlohmann::json params = nlohmann::json::object();
+    for (const auto& [name, value] : r.parameters)
+        params[name] = value;
+    j["parameters"] = params;
+    j["certificate"] = {
+        {"method", r.solve.method},       {"residual", r.solve.residual},
+        {"tolerance", r.solve.tolerance}, {"residual_definition", r.solve.residual_definition},
+        {"converged", r.solve.converged}, {"iterations", r.solve.iterations}};
+    nlohmann::json measures = nlohmann::json::array();
+    for (const auto& m : r.summary.measures) {
+        nlohmann::json q = nlohmann::json::object();
+        for (const auto& x : m.quantiles)
+            q[fmt::format("{:g}", x.level)] = x.value;
+        nlohmann::json given = nlohmann::json::array();
+        for (const auto& g : m.given)
+            given.push_back({{"condition", g.condition},
+                             {"probability", g.probability},
+                             {"mean", g.mean ? nlohmann::json(*g.mean) : nlohmann::json(nullptr)}});
+        nlohmann::json tail = nlohmann::json::array();
+        for (std::size_t i = 0; i < m.values.size(); ++i)
+            tail.push_back({m.values[i], m.pmf[i], m.tail[i]});
+        nlohmann::json mj = {{"name", m.name},     {"origin", m.origin},  {"mean", m.mean},
+                             {"std", m.std},       {"quantiles", q},      {"given", given},
+                             {"binned", m.binned}, {"distribution", tail}};
+        if (m.mass_at_upper)
+            mj["mass_at_upper_bound"] = *m.mass_at_upper;
+        if (m.mass_at_lower)
+            mj["mass_at_lower_bound"] = *m.mass_at_lower;
+        measures.push_back(mj);
+    }
+    j["measures"] = measures;
+    nlohmann::json probabilities = nlohmann::json::array();
+    for (const auto& p : r.summary.probabilities)
+        probabilities.push_back(
+            {{"name", p.name}, {"condition", p.condition}, {"probability", p.probability}});
+    j["probabilities"] = probabilities;
+    nlohmann::json events = nlohmann::json::array();
+    for (const auto& e : r.summary.events)
+        events.push_back({{"name", e.name},
+                          {"rate", e.rate},
+                          {"source", e.source},
+                          {"expression", e.expression}});
+    j["event_rates"] = {{"unit", r.summary.rate_unit}, {"events", events}};
+    nlohmann::json likely = nlohmann::json::array();
+    for (const auto& s : r.summary.likely_states) {
+        nlohmann::json vars = nlohmann::json::object();
+        for (const auto& [name, value] : s.variables)
+            vars[name] = value;
+        likely.push_back({{"index", s.index}, {"probability", s.probability}, {"variables", vars}});
+    }
+    j["likely_states"] = likely;
+    j["warnings"] = r.warnings;
+    j["caution"] = safety_caution;
+    return j;
+}
+
+std::string summary_csv(const SummaryReport& r) {
+    // Names may hold commas (a --tail condition): quote every text field.
+    auto quoted = [](const std::string& s) {
+        std::string out = "\"";
+        for (char c : s)
+            out += c == '"' ? std::string("\"\"") : std::string(1, c);
+        return out + "\"";
+    };
+    std::string t = "kind,name,statistic,value\n";
+    auto row = [&](const char* kind, const std::string& name, const std::string& stat, double v) {
+        t += fmt::format("{},{},{},{:.17g}\n", kind, quoted(name), quoted(stat), v);
+    };
+    for (const auto& m : r.summary.measures) {
+        row("measure", m.name, "mean", m.mean);
+        row("measure", m.name, "std", m.std);
+        for (const auto& q : m.quantiles)
+            row("measure", m.name, quantile_label(q.level), q.value);
+        for (const auto& g : m.given) {
+            row("measure", m.name, "P(" + g.condition + ")", g.probability);
+            if (g.mean)
+                row("measure", m.name, "mean|" + g.condition, *g.mean);
+        }
+    }
+    for (const auto& p : r.summary.probabilities)
+        row("probability", p.name, "P", p.probability);
+    for (const auto& e : r.summary.events)
+        row("event", e.name, "rate", e.rate);
+    return t;
+}
+
+} // namespace longrun::cli
