@@ -13,8 +13,9 @@ enum class ExitCode : int {
     bad_input = 2,     // an input file is unreadable, malformed or inconsistent
     no_unique = 3,     // the chain has no unique stationary distribution
     numerical = 4,     // no method reached the certificate within tolerance
-    disagreement = 5,  // reserved: simulation disagrees with a solved result
+    disagreement = 5,  // simulation disagrees with a solved result
     output_failed = 6, // the result could not be written (disk full, permissions)
+    interrupted = 7,   // stopped by SIGTERM/SIGINT after writing a checkpoint: resume it
 };
 
 class Error : public std::runtime_error {

@@ -57,13 +57,18 @@ std::string summary_text(const SummaryReport& r) {
                      r.solve.residual, r.solve.tolerance, r.solve.method, r.solve.iterations);
 
     const auto& measures = r.summary.measures;
+    std::size_t width = 14; // the longest name, so that the columns line up
+    for (const auto& m : measures)
+        width = std::max(width, m.name.size());
+    for (const auto& e : r.summary.events)
+        width = std::max(width, e.name.size());
     if (!measures.empty()) {
-        t += fmt::format("\n{:<14} {:>12} {:>12}", "measure", "mean", "std");
+        t += fmt::format("\n{:<{}} {:>12} {:>12}", "measure", width, "mean", "std");
         for (double level : r.default_levels)
             t += fmt::format(" {:>9}", percent(level));
         t += "   tail mass\n";
         for (const auto& m : measures) {
-            t += fmt::format("{:<14} {:>12.6g} {:>12.6g}", m.name, m.mean, m.std);
+            t += fmt::format("{:<{}} {:>12.6g} {:>12.6g}", m.name, width, m.mean, m.std);
             for (double level : r.default_levels) {
                 std::string cell = "-";
                 for (const auto& q : m.quantiles)
@@ -98,8 +103,8 @@ std::string summary_text(const SummaryReport& r) {
         t += fmt::format("\nevent rates ({})\n", r.summary.rate_unit);
         for (const auto& e : r.summary.events)
             t += e.expression.empty()
-                     ? fmt::format("  {:<14} {:.6e}\n", e.name, e.rate)
-                     : fmt::format("  {:<14} {:.6e}   = {}\n", e.name, e.rate, e.expression);
+                     ? fmt::format("  {:<{}} {:.6e}\n", e.name, width, e.rate)
+                     : fmt::format("  {:<{}} {:.6e}   = {}\n", e.name, width, e.rate, e.expression);
     }
     if (!r.summary.likely_states.empty()) {
         t += fmt::format("\nmost likely states\n");

@@ -221,6 +221,7 @@ std::vector<std::string> write_sweep_plots(const SweepTable& t, const std::strin
         chart.title = column + " against " + t.axis.parameter;
         chart.x_label = t.axis.parameter;
         chart.y_label = column;
+        chart.x_from_zero = false;
         plot::Series s;
         s.label = column;
         s.markers = true;
@@ -236,7 +237,8 @@ std::vector<std::string> write_sweep_plots(const SweepTable& t, const std::strin
         chart.log_y = column.rfind("P(", 0) == 0 && *lo > 0 && *hi >= 100 * *lo;
         chart.series.push_back(std::move(s));
         if (t.until && t.until->column == column)
-            chart.reference = plot::ReferenceLine{t.until->threshold, "--until " + t.until->text};
+            chart.reference =
+                plot::ReferenceLine{t.until->threshold, fmt::format("{:g}", t.until->threshold)};
         for (const auto format : {plot::Format::png, plot::Format::svg}) {
             const std::string file = names[c] + plot::extension(format);
             plot::write_chart(chart, file, format);

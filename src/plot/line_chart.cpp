@@ -85,7 +85,8 @@ void write_chart(const LineChart& chart, const std::string& path, Format format)
     const bool log_y = chart.log_y;
     std::vector<Drawable> lines;
     Range xs, ys;
-    xs.add(0);
+    if (chart.x_from_zero)
+        xs.add(0);
     for (const auto& s : chart.series) {
         lines.push_back(drawable(s, log_y, chart.y_floor));
         for (double x : lines.back().x)
@@ -103,10 +104,17 @@ void write_chart(const LineChart& chart, const std::string& path, Format format)
     } else if (ys.high == ys.low) {
         ys.low -= 1;
         ys.high += 1;
+    } else { // markers on the extremes stay inside the box
+        const double pad = 0.04 * (ys.high - ys.low);
+        ys.low -= pad;
+        ys.high += pad;
     }
     if (!(xs.high > xs.low))
         xs.high = xs.low + 1;
-    xs.high += 0.03 * (xs.high - xs.low);
+    const double margin = 0.03 * (xs.high - xs.low);
+    xs.high += margin;
+    if (!chart.x_from_zero) // markers on the first value stay clear of the box
+        xs.low -= margin;
 
     io::AtomicOutput out(path);
     Stream stream(out.temporary(), format, chart.width, chart.height);
@@ -171,11 +179,11 @@ void write_chart(const LineChart& chart, const std::string& path, Format format)
         plcol0(axes_colour);
         plwidth(1);
         pllegend(&legend_width, &legend_height, PL_LEGEND_BACKGROUND | PL_LEGEND_BOUNDING_BOX,
-                 PL_POSITION_RIGHT | PL_POSITION_TOP | PL_POSITION_INSIDE | PL_POSITION_SUBPAGE,
-                 0.01, 0.1, 0.05, 0, axes_colour, 1, 0, 0, static_cast<PLINT>(n), options.data(),
-                 0.8, 0.8, 2.0, 0.0, text_colours.data(), texts.data(), nullptr, nullptr, nullptr,
-                 nullptr, colours.data(), styles.data(), widths.data(), colours.data(),
-                 symbol_scales.data(), symbol_numbers.data(), marks.data());
+                 PL_POSITION_RIGHT | PL_POSITION_OUTSIDE | PL_POSITION_VIEWPORT, 0.02, 0.0, 0.05, 0,
+                 axes_colour, 1, 0, 0, static_cast<PLINT>(n), options.data(), 0.8, 0.8, 2.0, 0.0,
+                 text_colours.data(), texts.data(), nullptr, nullptr, nullptr, nullptr,
+                 colours.data(), styles.data(), widths.data(), colours.data(), symbol_scales.data(),
+                 symbol_numbers.data(), marks.data());
     }
     stream.finish();
     out.commit();

@@ -25,6 +25,9 @@ struct ReferenceLine {
 struct LineChart {
     std::string title, x_label, y_label;
     bool log_y = false;
+    // Time and iteration axes start at 0; a parameter axis (a sweep over 2..6)
+    // should span only the values drawn.
+    bool x_from_zero = true;
     // Log axis: values below this are drawn on the lower edge, so that one exact
     // answer (a residual of 1e-40) does not squash every other line.
     std::optional<double> y_floor;

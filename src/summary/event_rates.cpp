@@ -3,6 +3,7 @@
 #include "expression_error.hpp"
 #include "io/error.hpp"
 #include "model/expression.hpp"
+#include "model/model.hpp"
 
 #include <fmt/format.h>
 
@@ -57,10 +58,14 @@ std::vector<io::EventRateRecord> event_rates(MPI_Comm comm, const io::Chain& cha
     std::vector<io::EventRateRecord> out;
     for (std::size_t e = 0; e < named; ++e)
         out.push_back({chain.event_intensities[e].name, "", sums[e], "event intensities"});
-    if (labelled)
-        for (std::size_t l = 0; l < chain.event_names.size(); ++l)
-            if (!has_name(out, chain.event_names[l]))
-                out.push_back({chain.event_names[l], "", sums[named + l], "transition labels"});
+    for (std::size_t l = 0; labelled && l < chain.event_names.size(); ++l) {
+        // Transitions merged from several events carry no single name; with
+        // intensities every event is already counted on its own.
+        if (named > 0 && chain.event_names[l] == model::several_events_label)
+            continue;
+        if (!has_name(out, chain.event_names[l]))
+            out.push_back({chain.event_names[l], "", sums[named + l], "transition labels"});
+    }
     return out;
 }
 
