@@ -10,6 +10,7 @@
 // Like STREAM, every rate comes from the best of the timed repetitions.
 
 #include "cli/load.hpp"
+#include "cli/solve_layout.hpp"
 #include "cli/structure_report.hpp"
 #include "io/error.hpp"
 #include "io/mpi_agree.hpp"
@@ -35,7 +36,7 @@ constexpr const char* description =
     R"(Times the sparse product y = A x with a chain's matrix against a STREAM triad on
 the same ranks, and prints one JSON line.
 
-  mpirun -n R longrun-bandwidth CHAIN.h5 [--repeat N] [-- PETSc options]
+  mpirun -n R longrun-bandwidth CHAIN.h5 [--repeat N] [--partition P] [-- PETSc options]
 
 A = Q^T (ctmc) or P^T (dtmc), assembled as `longrun solve` assembles it: PETSc
 AIJ (MPIAIJ on several ranks), one stored diagonal entry per row.
@@ -67,6 +68,7 @@ struct Options {
     std::string chain;
     int repeat = 50;
     double triad_mib = 256;
+    std::string partition = "contiguous";
 };
 
 struct Timing {
@@ -160,11 +162,24 @@ std::string apply_requested_format(longrun::solve::MatHandle& a) {
 int run(MPI_Comm comm, const Options& o) {
     const int rank = longrun::comm_rank(comm), ranks = longrun::comm_size(comm);
     longrun::solve::TransposedChain a;
+    nlohmann::json partition;
     {
         // The chain's own arrays go before timing: only A stays in memory.
         const auto loaded =
             longrun::cli::load_chain(o.chain, comm, longrun::io::ValidationOptions{});
-        a = longrun::solve::assemble_transposed(comm, longrun::cli::local_rows_of(loaded.chain));
+        const longrun::cli::SolveLayout layout(comm, loaded.chain,
+                                               longrun::cli::local_rows_of(loaded.chain),
+                                               *longrun::partition::parse_layout(o.partition), "");
+        partition = {{"used", longrun::partition::to_string(layout.outcome().used)},
+                     {"seconds", layout.outcome().seconds}};
+        for (const auto& [name, q] : {std::pair{"contiguous", layout.outcome().contiguous},
+                                      std::pair{"graph", layout.outcome().graph}})
+            if (q)
+                partition[name] = {{"volume", q->volume},
+                                   {"max_volume", q->max_volume},
+                                   {"edge_cut", q->edge_cut},
+                                   {"imbalance", q->imbalance}};
+        a = longrun::solve::assemble_transposed(comm, layout.rows());
     }
     const std::string type = apply_requested_format(a.matrix);
 
@@ -248,6 +263,7 @@ int run(MPI_Comm comm, const Options& o) {
         {"median_product_gbs", gbs(product_bytes, product.median)},
         {"median_triad_gbs", gbs(large.bytes, large.time.median)},
         {"mpiaij_split", split},
+        {"partition", partition},
     };
     if (rank == 0)
         std::cout << j.dump() << std::endl;
@@ -287,6 +303,10 @@ int main(int argc, char** argv) {
         ->capture_default_str();
     app.add_option("--triad-mib", o.triad_mib, "MiB per array per rank of the large triad")
         ->check(CLI::Range(1.0, 65536.0))
+        ->capture_default_str();
+    app.add_option("--partition", o.partition,
+                   "rows per rank as `longrun solve --partition` places them")
+        ->check(CLI::IsMember({"auto", "contiguous", "graph"}))
         ->capture_default_str();
     int code = 0;
     std::vector<const char*> cargs;

@@ -13,12 +13,13 @@ packages=(
   build-essential cmake pkg-config git
   openmpi-bin libopenmpi-dev libhdf5-openmpi-dev
   petsc-dev slepc-dev
+  libpetsc64-real3.18-dev libslepc64-real3.18-dev
   libcli11-dev nlohmann-json3-dev libfmt-dev libgtest-dev
   libyaml-cpp-dev libmuparser-dev
   libplplot-dev plplot-driver-cairo
   python3 python3-numpy python3-scipy python3-h5py
   chromium chromium-driver python3-selenium
-  clang-format clang-14 libclang-rt-14-dev
+  clang-format clang-14 libclang-rt-14-dev shellcheck
 )
 
 install_packages() {
@@ -64,8 +65,19 @@ run_demo() {
   "$build/src/longrun" generate jobs/models/help-desk.yaml -o "$out/help-desk.h5"
   "$build/src/longrun" solve "$out/help-desk.h5" -o "$out/help-desk-result.h5" --quiet
   echo
-  echo "results: $out/hub-result.h5, $out/hub-result-2ranks.h5 and $out/help-desk-result.h5"
-  echo "(open with h5dump or h5py)"
+  echo "== the answers: measures, tails, event rates, plots and a report to share"
+  mkdir -p "$out/plots"
+  "$build/src/longrun" summarize "$out/help-desk-result.h5" --top 3 \
+    --tail "all_busy=busy==advisers" --given "busy==advisers" \
+    --rate "lost_fraction=caller_lost/(caller_lost+call_answered_at_once+call_put_on_hold)" \
+    --plot "$out/plots/help-desk" --report "$out/help-desk-report.html"
+  echo
+  echo "== up to which arrival rate are all advisers busy less than 80 % of the time?"
+  "$build/src/longrun" sweep jobs/models/help-desk.yaml --vary arrival=2:4:0.25 \
+    --tail "all_busy=busy==advisers" --until "P(all_busy) > 0.8" -o "$out/plots/arrival" --quiet
+  echo
+  echo "results: $out/hub-result.h5, $out/hub-result-2ranks.h5, $out/help-desk-result.h5"
+  echo "(open with h5dump or h5py); report: $out/help-desk-report.html; sweep: $out/plots/arrival.csv"
 }
 
 check_format() {
@@ -105,10 +117,19 @@ run_fuzz() {
   done
 }
 
+# The 64-bit-index variant (chains past 2^31 - 1 transitions per matrix): the
+# solver library and one MPI test against Debian's PETSc64/SLEPc64.
+run_index64_test() {
+  cmake -S . -B "$build-index64" -DCMAKE_BUILD_TYPE=Release -DLONGRUN_INDEX64=ON
+  cmake --build "$build-index64" -j "$jobs" --target test_index64
+  ctest --test-dir "$build-index64" --output-on-failure -R '^test_index64_'
+}
+
 run_tests() {
   mpi_env
   check_format
   ctest --test-dir "$build" --output-on-failure -j "$jobs"
+  run_index64_test
   # Unit tests again under address and undefined-behaviour sanitizers.
   cmake -S . -B "$build-asan" -DCMAKE_BUILD_TYPE=Debug -DLONGRUN_SANITIZE=ON
   cmake --build "$build-asan" -j "$jobs" --target longrun_unit_tests

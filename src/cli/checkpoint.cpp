@@ -1,5 +1,7 @@
 #include "checkpoint.hpp"
 
+#include "stop_signal.hpp"
+
 #include <fmt/format.h>
 
 #include <algorithm>
@@ -10,22 +12,26 @@ CheckpointWriter::CheckpointWriter(MPI_Comm comm, std::string path, double inter
                                    io::CheckpointInfo chain, RowRange rows,
                                    solve::Progress* progress)
     : comm_(comm), path_(std::move(path)), interval_(interval_seconds), info_(std::move(chain)),
-      rows_(rows), progress_(progress), started_(Clock::now()), last_(started_) {}
+      rows_(rows), progress_(progress), started_(Clock::now()), last_(started_) {
+    enabled_ = !path_.empty();
+}
 
 bool CheckpointWriter::due() {
     int rank = 0;
     MPI_Comm_rank(comm_, &rank);
-    int now_due = 0;
+    // One reduction carries both verdicts: rank 0's clock, and the stop signal
+    // that any rank may have received (the largest signal number wins).
+    int mine[2] = {0, stop_signal_received()};
     if (rank == 0)
-        now_due =
+        mine[0] =
             enabled_ && std::chrono::duration<double>(Clock::now() - last_).count() >= interval_;
-    MPI_Bcast(&now_due, 1, MPI_INT, 0, comm_);
-    return now_due != 0;
+    int agreed[2] = {0, 0};
+    MPI_Allreduce(mine, agreed, 2, MPI_INT, MPI_MAX, comm_);
+    stop_signal_ = agreed[1];
+    return agreed[0] != 0 || stop_signal_ != 0;
 }
 
-void CheckpointWriter::save(Vec x, const std::string& method, long iteration) {
-    if (!enabled_)
-        return;
+bool CheckpointWriter::write(Vec x, const std::string& method, long iteration, std::string& why) {
     std::vector<double> local(rows_.size());
     const PetscScalar* v = nullptr;
     double mine = 0;
@@ -38,8 +44,10 @@ void CheckpointWriter::save(Vec x, const std::string& method, long iteration) {
     }
     double total = 0;
     MPI_Allreduce(&mine, &total, 1, MPI_DOUBLE, MPI_SUM, comm_);
-    if (!(total > 0))
-        return; // nothing worth keeping yet
+    if (!(total > 0)) {
+        why = "no iterate worth keeping yet";
+        return false;
+    }
     for (double& p : local)
         p /= total;
     io::CheckpointInfo info = info_;
@@ -54,10 +62,48 @@ void CheckpointWriter::save(Vec x, const std::string& method, long iteration) {
                 fmt::format("checkpoint {} written ({} iteration {})", path_, method, iteration));
     } catch (const Error& e) { // agreed inside write_checkpoint: every rank is here
         enabled_ = false;
+        why = e.what();
         if (progress_)
             progress_->warn(std::string("checkpoints stopped: ") + e.what());
+        return false;
     }
     last_ = Clock::now();
+    return true;
+}
+
+void CheckpointWriter::save(Vec x, const std::string& method, long iteration) {
+    if (stop_signal_ != 0)
+        stop(x, method, iteration);
+    if (!enabled_)
+        return;
+    std::string why;
+    if (!write(x, method, iteration, why))
+        last_ = Clock::now(); // a skipped write waits a full interval too
+}
+
+void CheckpointWriter::stop_if_signalled(Vec x, const std::string& method, long iteration) {
+    stop_signal_ = agreed_stop_signal(comm_);
+    if (stop_signal_ != 0)
+        stop(x, method, iteration);
+}
+
+void CheckpointWriter::stop(Vec x, const std::string& method, long iteration) {
+    const std::string head = fmt::format("stopped by {} at iteration {} ({})",
+                                         signal_name(stop_signal_), iteration, method);
+    if (path_.empty())
+        throw stopped(head + "; no checkpoint written (none was asked for: with --checkpoint "
+                             "FILE a stopped solve can be resumed)");
+    const bool had_failed = !enabled_;
+    std::string why = "an earlier checkpoint write failed";
+    if (!had_failed && x && write(x, method, iteration, why))
+        throw stopped(fmt::format(
+            "{}; checkpoint written to {}: run the same command with --resume {} to continue", head,
+            path_, path_));
+    if (!x)
+        why = "no iterate yet";
+    const std::string earlier =
+        written_ > 0 ? fmt::format(" ({} holds the one written before)", path_) : "";
+    throw stopped(fmt::format("{}; no checkpoint written now: {}{}", head, why, earlier));
 }
 
 } // namespace longrun::cli

@@ -3,6 +3,11 @@
 // A failed write warns once and ends checkpointing; the solve goes on, since
 // losing a long run to a full scratch disk would be worse than losing the
 // checkpoint.
+//
+// A stop signal (SIGTERM, SIGINT) on any rank makes a checkpoint due at once
+// (agreed by a reduction, never one rank alone); save() then writes it and
+// throws the agreed stop (ExitCode::interrupted) that ends the solve. Without a
+// path the writer only stops the solve: nothing is written.
 #pragma once
 
 #include "io/iterate_file.hpp"
@@ -17,10 +22,15 @@ namespace longrun::cli {
 
 class CheckpointWriter : public solve::IterateSink {
   public:
+    // An empty `path`: no checkpoints, only the stop on a signal.
     CheckpointWriter(MPI_Comm comm, std::string path, double interval_seconds,
                      io::CheckpointInfo chain, RowRange rows, solve::Progress* progress);
     bool due() override;
+    // Throws the agreed stop after writing when due() saw a stop signal.
     void save(Vec x, const std::string& method, long iteration) override;
+    // Collective: the stop for a signal that came while no method was iterating;
+    // `x` (may be null) is the iterate to keep. Returns when no rank got a signal.
+    void stop_if_signalled(Vec x, const std::string& method, long iteration);
     long written() const noexcept { return written_; }
     const std::string& path() const noexcept { return path_; }
 
@@ -35,6 +45,11 @@ class CheckpointWriter : public solve::IterateSink {
     Clock::time_point started_, last_;
     bool enabled_ = true;
     long written_ = 0;
+    int stop_signal_ = 0; // agreed: the same on every rank
+
+    // Writes x; false (with the reason in `why`) when nothing was written.
+    bool write(Vec x, const std::string& method, long iteration, std::string& why);
+    [[noreturn]] void stop(Vec x, const std::string& method, long iteration);
 };
 
 } // namespace longrun::cli

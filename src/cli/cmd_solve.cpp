@@ -18,6 +18,7 @@ struct SolveOptions {
     SolveRequest request;
     std::string output;
     std::string preconditioner = "amg";
+    std::string partition = "auto";
     bool json = false;
     bool quiet = false;
     std::optional<std::uint64_t> start_state;
@@ -34,6 +35,7 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
         o.request.output = o.output;
     }
     o.request.preconditioner = solve::preconditioner_named(o.preconditioner);
+    o.request.partition = *partition::parse_layout(o.partition);
     o.request.progress = !o.quiet;
     if ((o.start_state || o.start_distribution) && !o.request.per_class)
         throw UsageError("--from and --from-distribution go with --per-class");
@@ -93,7 +95,8 @@ Action add_solve(CLI::App& app) {
     // Existence is the reader's check, not the parser's: a missing or unreadable
     // input is bad input (exit 2), not a usage error.
     sub->footer("Exit codes: 0 done, 1 usage error, 2 bad input, 3 no unique stationary\n"
-                "distribution, 4 no certified answer within tolerance, 6 output not written.");
+                "distribution, 4 no certified answer within tolerance, 6 output not written,\n"
+                "7 stopped by SIGTERM/SIGINT (with --checkpoint: resume with --resume).");
     sub->add_option("chain", o->request.chain_path, "chain file (HDF5, longrun.chain v1)")
         ->required();
     sub->add_option("-o,--output", o->output,
@@ -118,6 +121,13 @@ Action add_solve(CLI::App& app) {
                     "Schwarz, ILU(0) on overlapping blocks), lu (MUMPS)")
         ->default_val("amg")
         ->check(CLI::IsMember({"amg", "ilu", "asm", "lu"}));
+    sub->add_option("--partition", o->partition,
+                    "rows per rank during the solve: contiguous (blocks of the file's order), "
+                    "graph (PT-Scotch on the symmetrised transition graph; rows are moved, "
+                    "results stay in file order), auto (graph when it at least halves the "
+                    "vector entries exchanged per product without adding imbalance)")
+        ->default_val("auto")
+        ->check(CLI::IsMember({"auto", "contiguous", "graph"}));
     add_validation_options(sub, o->request.validation);
     sub->add_flag("--no-analysis{false}", o->request.analyse_structure,
                   "skip the structure check (closed classes, period) that runs before solving; "

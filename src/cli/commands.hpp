@@ -22,5 +22,6 @@ Action add_generate(CLI::App& app);
 Action add_compare(CLI::App& app);
 Action add_summarize(CLI::App& app);
 Action add_sweep(CLI::App& app);
+Action add_simulate(CLI::App& app);
 
 } // namespace longrun::cli

@@ -2,6 +2,7 @@
 // stderr and a distinct exit code; everything after a lone "--" goes to PETSc's
 // options database (e.g. -- -linear_ksp_type bcgs -eigen_eps_ncv 40).
 #include "commands.hpp"
+#include "stop_signal.hpp"
 
 #include "io/error.hpp"
 #include "solve/petsc_error.hpp"
@@ -24,7 +25,8 @@ constexpr const char* description =
     "certifies it with a residual, and summarises it (means, quantiles, tail masses).\n"
     "Run it under mpirun to spread a chain over many ranks.\n\n"
     "Exit codes: 0 done, 1 usage error, 2 bad input, 3 no unique stationary distribution,\n"
-    "4 no certified answer within tolerance, 6 the result could not be written.\n\n"
+    "4 no certified answer within tolerance, 5 a simulation disagrees with a solved result,\n"
+    "6 the result could not be written, 7 stopped by SIGTERM/SIGINT (resume it).\n\n"
     "PETSc/SLEPc options go after a lone '--', with the method's prefix, for example:\n"
     "  longrun solve chain.h5 -o result.h5 --method linear -- -linear_ksp_type bcgs\n";
 
@@ -71,9 +73,10 @@ int main(int argc, char** argv) {
     app.add_option("--options-file", options_file,
                    "PETSc/SLEPc options database file (one option per line)")
         ->check(CLI::ExistingFile);
-    for (auto add : {longrun::cli::add_convert, longrun::cli::add_check, longrun::cli::add_solve,
-                     longrun::cli::add_generate, longrun::cli::add_compare,
-                     longrun::cli::add_summarize, longrun::cli::add_sweep}) {
+    for (auto add :
+         {longrun::cli::add_convert, longrun::cli::add_check, longrun::cli::add_solve,
+          longrun::cli::add_generate, longrun::cli::add_compare, longrun::cli::add_summarize,
+          longrun::cli::add_sweep, longrun::cli::add_simulate}) {
         const auto before = app.get_subcommands({}).size();
         auto action = add(app);
         verbs.emplace_back(app.get_subcommands({})[before], std::move(action));
@@ -111,11 +114,19 @@ int main(int argc, char** argv) {
 
     try {
         for (auto& [sub, action] : verbs)
-            if (sub->parsed())
+            if (sub->parsed()) {
+                // Only solve knows how to stop cleanly (a checkpoint, exit 7); the
+                // other verbs keep the default: a signal ends them at once.
+                if (sub->get_name() == "solve")
+                    longrun::cli::install_stop_handlers();
                 code = action(comm);
+            }
     } catch (const longrun::Error& e) {
         code = static_cast<int>(e.code());
-        if (e.agreed() || e.code() == longrun::ExitCode::usage) {
+        if (e.code() == longrun::ExitCode::interrupted && e.agreed()) {
+            if (rank == 0) // not an error: the job was told to stop
+                std::fprintf(stderr, "longrun: %s\n", e.what());
+        } else if (e.agreed() || e.code() == longrun::ExitCode::usage) {
             if (rank == 0)
                 report_error(-1, e.what());
         } else {

@@ -19,6 +19,41 @@ std::string bytes(std::uint64_t b) {
     return mib >= 1024 ? fmt::format("{:.2f} GiB", mib / 1024) : fmt::format("{:.0f} MiB", mib);
 }
 
+nlohmann::json quality_json(const std::optional<partition::Quality>& q) {
+    if (!q)
+        return nullptr;
+    return {{"edge_cut", q->edge_cut},
+            {"volume", q->volume},
+            {"max_volume", q->max_volume},
+            {"imbalance", q->imbalance},
+            {"max_nonzeros", q->max_nonzeros}};
+}
+
+nlohmann::json partition_json(const PartitionOutcome& p) {
+    return {{"requested", partition::to_string(p.requested)},
+            {"used", partition::to_string(p.used)},
+            {"reason", p.reason},
+            {"seconds", p.seconds},
+            {"contiguous", quality_json(p.contiguous)},
+            {"graph", quality_json(p.graph)}};
+}
+
+// One line per layout measured; a star marks the one used.
+std::string partition_text(const PartitionOutcome& p) {
+    std::string t = fmt::format("partition    {} ({}; {:.2f} s)\n", partition::to_string(p.used),
+                                p.reason, p.seconds);
+    auto line = [&](partition::Layout layout, const std::optional<partition::Quality>& q) {
+        if (q)
+            t += fmt::format("  {:<11} {} vector entries per product (largest rank {}), edge "
+                             "cut {}, imbalance {:.3f}\n",
+                             partition::to_string(layout) + (layout == p.used ? "*" : ""),
+                             q->volume, q->max_volume, q->edge_cut, q->imbalance);
+    };
+    line(partition::Layout::contiguous, p.contiguous);
+    line(partition::Layout::graph, p.graph);
+    return t;
+}
+
 } // namespace
 
 nlohmann::json to_json(const SolveReport& r) {
@@ -115,6 +150,7 @@ nlohmann::json to_json(const SolveReport& r) {
                         {"probability", t.mass},
                         {"warning", t.warn}});
     j["truncation"] = {{"threshold", r.truncation_threshold}, {"bounds", cuts}};
+    j["partition"] = partition_json(r.partition);
     j["output"] = r.output ? nlohmann::json(*r.output) : nlohmann::json(nullptr);
     return j;
 }
@@ -124,6 +160,8 @@ std::string to_text(const SolveReport& r) {
     t += fmt::format("chain        {}: {}, {} states, {} transitions\n", r.chain_path,
                      io::to_string(r.kind), r.states, r.transitions);
     t += fmt::format("ranks        {}\n", r.ranks);
+    if (r.ranks > 1)
+        t += partition_text(r.partition);
     if (r.structure)
         t += fmt::format("structure    {}\n", r.structure_verdict);
     std::string tried;

@@ -6,6 +6,7 @@
 #include "load.hpp"
 #include "solve/assemble.hpp"
 #include "solve/per_class.hpp"
+#include "stop_signal.hpp"
 #include "structure_report.hpp"
 #include "summary/reversibility.hpp"
 
@@ -359,6 +360,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     if (loaded.validation.ctmc_self_loops > 0)
         progress.note(fmt::format("warning: ignored {} rate(s) from a state to itself",
                                   loaded.validation.ctmc_self_loops));
+    stop_if_signalled(comm, "reading the chain");
 
     const solve::LocalRows rows = local_rows_of(chain);
     if (request.analyse_structure) {
@@ -375,15 +377,26 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
             throw e;
         }
         progress.note("structure: " + words.verdict);
+        stop_if_signalled(comm, "checking the chain's structure");
     }
-    solve::TransposedChain a = solve::assemble_transposed(comm, rows);
+    // Per-class solves and checkpoints index the solve's vectors by file rows.
+    const bool file_order_only =
+        (report.structure && !report.structure->unique()) || request.checkpoint || request.resume;
+    const SolveLayout layout(comm, chain, rows, request.partition,
+                             file_order_only ? "per-class solve or checkpoints need file order"
+                                             : "");
+    report.partition = layout.outcome();
+    if (report.ranks > 1)
+        progress.note(fmt::format("partition: {} ({})", partition::to_string(layout.outcome().used),
+                                  layout.outcome().reason));
+    solve::TransposedChain a = solve::assemble_transposed(comm, layout.rows());
     report.residual_definition = solve::residual_definition(rows.time);
 
     solve::MethodSettings settings;
     settings.tolerance = request.tolerance;
     settings.preconditioner = request.preconditioner;
     settings.progress = &progress;
-    const solve::StateCoordinates coordinates = coordinates_of(chain);
+    const solve::StateCoordinates coordinates = layout.to_solve_order(coordinates_of(chain));
     settings.coordinates = &coordinates;
     const solve::ChainTraits traits =
         traits_of(comm, chain, rows.time, report.structure ? &*report.structure : nullptr);
@@ -427,7 +440,8 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         }
     }
     if (start_file && !several) {
-        const auto local = io::read_distribution_slice(*start_file, comm, chain.rows, chain.states);
+        const auto local = layout.to_solve_order(
+            io::read_distribution_slice(*start_file, comm, chain.rows, chain.states));
         warm = solve::create_state_vector(a);
         PetscScalar* xv = nullptr;
         solve::check(VecGetArray(warm, &xv), "VecGetArray");
@@ -443,15 +457,20 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     }
     if (!report.start_from.empty())
         progress.note(report.start_from);
+    stop_if_signalled(comm, "preparing the solve");
+    // Always there: without a path it only stops the methods on a signal. A
+    // per-class solve iterates on sub-chains, whose iterates are no checkpoint.
     std::optional<CheckpointWriter> checkpoints;
-    if (checkpoint_path) {
+    {
         io::CheckpointInfo info;
         info.chain_path = request.chain_path;
         info.states = chain.states;
         info.transitions = chain.transitions;
         info.elapsed_seconds = elapsed_before;
-        checkpoints.emplace(comm, *checkpoint_path, request.checkpoint_every, info, chain.rows,
-                            &progress);
+        if (several && checkpoint_path)
+            progress.note("per-class solve: no checkpoints are written");
+        checkpoints.emplace(comm, several ? std::string() : checkpoint_path.value_or(""),
+                            request.checkpoint_every, info, chain.rows, &progress);
         settings.checkpoint = &*checkpoints;
     }
     io::LocalClassData class_data;
@@ -463,6 +482,8 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         report.plan = outcome.plan;
         report.plan_reason = outcome.plan_reason;
         report.attempts = outcome.attempts;
+        if (!outcome.met) // a method without iterations (direct, gth) ran past the signal
+            checkpoints->stop_if_signalled(outcome.pi, outcome.method, outcome.iterations);
         if (checkpoints && !outcome.met && outcome.pi) {
             // The best iterate so far, for a resumed run with other settings.
             checkpoints->save(outcome.pi, outcome.method, outcome.iterations);
@@ -473,7 +494,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         report.certificate = outcome.certificate;
         if (!outcome.met)
             throw uncertified(request, report, outcome.attempts);
-        report.local_pi = local_entries(outcome.pi);
+        report.local_pi = layout.to_file_order(local_entries(outcome.pi));
         // Detailed balance tells users whether a product-form shortcut may exist.
         const auto balance = summary::check_detailed_balance(a, outcome.pi);
         report.detailed_balance_violation = balance.max_relative_violation;
@@ -501,6 +522,9 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     report.wall_seconds =
         std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
     report.peak_memory_bytes = peak_memory_bytes(comm);
+    if (const int signal = agreed_stop_signal(comm))
+        progress.note(fmt::format("{} came after the solve had finished: writing the result",
+                                  signal_name(signal)));
     if (request.output) {
         io::write_result_file(*request.output, comm, result_content(report, request.chain_path),
                               chain.rows, chain.states, report.local_pi,

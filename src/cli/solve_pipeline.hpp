@@ -8,6 +8,7 @@
 #include "io/result_file.hpp"
 #include "solve/method.hpp"
 #include "solve/strategy.hpp"
+#include "solve_layout.hpp"
 #include "summary/marginals.hpp"
 
 #include <mpi.h>
@@ -27,7 +28,9 @@ struct SolveRequest {
     solve::LinearPreconditioner preconditioner = solve::LinearPreconditioner::amg;
     bool progress = true;
     std::optional<RowRange> forced_rows; // tests: override the partition
-    bool analyse_structure = true;       // off only for chains too large to gather
+    // Rows during the solve: contiguous blocks, a graph partition, or auto.
+    partition::Layout partition = partition::Layout::automatic;
+    bool analyse_structure = true; // off only for chains too large to gather
     // Several closed classes: solve each on its own instead of stopping (exit 3).
     bool per_class = false;
     // With per_class: where the chain starts, for the absorption probabilities and
@@ -100,6 +103,7 @@ struct SolveReport {
     std::string reversibility_verdict;
     double truncation_threshold = 0;
     std::optional<std::string> output;
+    PartitionOutcome partition;
     RowRange rows;                // this rank's rows
     std::vector<double> local_pi; // this rank's entries of the distribution
 };

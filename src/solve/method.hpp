@@ -30,8 +30,10 @@ class IterateSink {
   public:
     virtual ~IterateSink() = default;
     virtual bool due() = 0;
-    // `x` need not be normalised; the sink copies what it needs. Never throws: a
-    // failed write is warned about and ends checkpointing, not the solve.
+    // `x` need not be normalised; the sink copies what it needs. A failed write is
+    // warned about and ends checkpointing, not the solve. It throws only to stop
+    // the solve (a stop signal, seen by due() on every rank alike): callers inside
+    // a PETSc callback must catch it and rethrow it outside PETSc.
     virtual void save(Vec x, const std::string& method, long iteration) = 0;
 };
 

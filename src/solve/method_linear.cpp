@@ -13,6 +13,7 @@
 #include <fmt/format.h>
 
 #include <cmath>
+#include <exception>
 
 namespace longrun::solve {
 
@@ -24,6 +25,9 @@ struct MonitorContext {
     Attempt* attempt;
     const MethodSettings* settings;
     long base_iteration;
+    // An exception must not unwind through PETSc's C frames: the monitor parks it
+    // here, makes KSPSolve return an error, and the caller rethrows it.
+    std::exception_ptr parked = nullptr;
 };
 
 PetscErrorCode monitor(KSP ksp, PetscInt it, PetscReal rnorm, void* raw) {
@@ -34,7 +38,12 @@ PetscErrorCode monitor(KSP ksp, PetscInt it, PetscReal rnorm, void* raw) {
         // application), only when a checkpoint is due.
         Vec current = nullptr;
         PetscCall(KSPBuildSolution(ksp, nullptr, &current));
-        ctx->settings->checkpoint->save(current, "linear", ctx->base_iteration + it);
+        try {
+            ctx->settings->checkpoint->save(current, "linear", ctx->base_iteration + it);
+        } catch (...) { // the agreed stop on a signal: every rank is here
+            ctx->parked = std::current_exception();
+            return PETSC_ERR_USER;
+        }
     }
     return 0;
 }
@@ -133,7 +142,10 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin, const Me
     VecHandle candidate = create_state_vector(a);
     for (int round = 0; round < s.max_rounds; ++round) {
         ctx.base_iteration = attempt.iterations;
-        check(KSPSolve(ksp, b, x), "KSPSolve");
+        const PetscErrorCode solved = KSPSolve(ksp, b, x);
+        if (ctx.parked)
+            std::rethrow_exception(ctx.parked);
+        check(solved, "KSPSolve");
         PetscInt its = 0;
         check(KSPGetIterationNumber(ksp, &its), "KSPGetIterationNumber");
         KSPConvergedReason reason;
