@@ -18,7 +18,7 @@ struct SolveOptions {
     SolveRequest request;
     std::string output;
     std::string preconditioner = "amg";
-    std::string partition = "auto";
+    std::string partition = "contiguous";
     bool json = false;
     bool quiet = false;
     std::optional<std::uint64_t> start_state;
@@ -126,7 +126,7 @@ Action add_solve(CLI::App& app) {
                     "graph (PT-Scotch on the symmetrised transition graph; rows are moved, "
                     "results stay in file order), auto (graph when it at least halves the "
                     "vector entries exchanged per product without adding imbalance)")
-        ->default_val("auto")
+        ->default_val("contiguous")
         ->check(CLI::IsMember({"auto", "contiguous", "graph"}));
     add_validation_options(sub, o->request.validation);
     sub->add_flag("--no-analysis{false}", o->request.analyse_structure,

@@ -31,6 +31,12 @@ SolveLayout::SolveLayout(MPI_Comm comm, const io::Chain& chain, const solve::Loc
         outcome_.reason = "one rank: nothing to partition";
         return;
     }
+    // Contiguous blocks need no measuring: the default path stays as fast as it was
+    // (building the adjacency for the quality numbers costs seconds on 10^6 states).
+    if (requested == Layout::contiguous) {
+        outcome_.reason = "contiguous blocks (--partition auto or graph tries PT-Scotch)";
+        return;
+    }
     const auto start = std::chrono::steady_clock::now();
     const partition::CsrView csr{chain.states, chain.rows, chain.offsets, chain.targets};
     const std::vector<RowRange> ranges = partition::gather_ranges(comm, chain.rows);
