@@ -2,6 +2,7 @@
 // answers, their plots, and where a condition first holds.
 #include "commands.hpp"
 #include "paths.hpp"
+#include "solver_options.hpp"
 #include "summarize_job.hpp"
 #include "sweep_job.hpp"
 #include "sweep_output.hpp"
@@ -20,7 +21,8 @@ namespace {
 
 struct SweepOptions {
     SweepRequest request;
-    std::string model, vary, until, prefix, work, gather, preconditioner = "amg";
+    SolverOptions solver;
+    std::string model, vary, until, prefix, work, gather;
     std::vector<std::string> sets;
     long only = -1;
     bool quiet = false, verbose = false;
@@ -111,7 +113,9 @@ int sweep_command(MPI_Comm comm, SweepOptions& o) {
         r.until = parse_until(o.until);
     if (o.only >= 0)
         r.only = static_cast<std::size_t>(o.only);
-    r.preconditioner = solve::preconditioner_named(o.preconditioner);
+    r.method = o.solver.method;
+    r.tolerance = o.solver.tolerance;
+    r.preconditioner = solve::preconditioner_named(o.solver.preconditioner);
     r.solver_progress = o.verbose;
     r.work_folder = o.work.empty() ? o.prefix + ".work" : o.work;
 
@@ -184,7 +188,9 @@ Action add_sweep(CLI::App& app) {
         "  longrun sweep --gather out/q\n"
         "    (the same table, files and crossing as one run; says which points are missing)\n"
         "Chain and result files of the points go to PREFIX.work/ and are removed as the sweep\n"
-        "goes, unless --keep (the results then also hold their /summary).");
+        "goes, unless --keep (the results then also hold their /summary).\n"
+        "Methods (--method NAME, or a comma list tried in order):\n" +
+            methods_help());
     sub->footer("Exit codes: 0 done (also when --until never held), 1 usage error, 2 bad model "
                 "or point files,\n4 a value with no certified answer, 6 output not written.");
     sub->add_option("model", o->model, "model description (YAML), as for generate");
@@ -216,22 +222,7 @@ Action add_sweep(CLI::App& app) {
                     "folder for the points' chain and result files "
                     "(default PREFIX.work)");
     sub->add_flag("--keep", o->request.keep, "keep the points' chain and result files");
-    sub->add_option("--method", o->request.method, "solve method, as for solve")
-        ->default_val("auto")
-        ->check([](const std::string& v) -> std::string {
-            try {
-                (void)solve::plan_for(v, {});
-            } catch (const Error& e) {
-                return e.what();
-            }
-            return "";
-        });
-    sub->add_option("--tol", o->request.tolerance, "certificate tolerance on the residual")
-        ->default_val(1e-10)
-        ->check(CLI::PositiveNumber);
-    sub->add_option("--preconditioner", o->preconditioner, "for linear: amg, ilu, asm or lu")
-        ->default_val("amg")
-        ->check(CLI::IsMember({"amg", "ilu", "asm", "lu"}));
+    add_solver_options(sub, o->solver);
     sub->add_option("--max-states", o->request.max_states,
                     "stop with exit 2 when a value's chain has more states than this");
     sub->add_flag("-q,--quiet", o->quiet, "no progress lines, no list of files written");

@@ -5,6 +5,7 @@
 #include "io/chain_file.hpp"
 #include "io/iterate_file.hpp"
 #include "io/mpi_agree.hpp"
+#include "io/mpi_gather.hpp"
 #include "io/summary_file.hpp"
 #include "summary/event_rates.hpp"
 #include "summary/measure_summary.hpp"
@@ -109,19 +110,12 @@ std::vector<ReplicationResult> gather_everywhere(MPI_Comm comm,
     for (const auto& r : mine)
         local.push_back(to_json(r));
     const std::vector<std::uint8_t> bytes = nlohmann::json::to_cbor(local);
-    const int size = comm_size(comm);
-    int count = static_cast<int>(bytes.size());
-    std::vector<int> counts(size), displs(size, 0);
-    MPI_Allgather(&count, 1, MPI_INT, counts.data(), 1, MPI_INT, comm);
-    for (int i = 1; i < size; ++i)
-        displs[i] = displs[i - 1] + counts[i - 1];
-    std::vector<std::uint8_t> all(static_cast<std::size_t>(displs.back() + counts.back()));
-    MPI_Allgatherv(bytes.data(), count, MPI_BYTE, all.data(), counts.data(), displs.data(),
-                   MPI_BYTE, comm);
+    const auto all = gather_runs_to_all<std::uint8_t>(comm, bytes);
     std::vector<ReplicationResult> out;
-    for (int i = 0; i < size; ++i) {
-        const auto first = all.begin() + displs[i];
-        const auto part = nlohmann::json::from_cbor(first, first + counts[i]);
+    for (std::size_t i = 0; i + 1 < all.offsets.size(); ++i) {
+        const auto first = all.items.begin() + static_cast<std::ptrdiff_t>(all.offsets[i]);
+        const auto last = all.items.begin() + static_cast<std::ptrdiff_t>(all.offsets[i + 1]);
+        const auto part = nlohmann::json::from_cbor(first, last);
         for (const auto& j : part)
             out.push_back(from_json(j));
     }

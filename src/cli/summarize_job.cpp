@@ -17,6 +17,7 @@
 #include <filesystem>
 #include <regex>
 #include <set>
+#include <span>
 
 namespace longrun::cli {
 
@@ -116,30 +117,19 @@ SolveRecord solve_record(const io::ResultInfo& info) {
     return s;
 }
 
-// Mass at a declared bound that is not negligible: the bound may cut off an
-// unbounded quantity (a queue that could grow), biasing every answer.
-void note_bounds(const io::StateVariable& v, io::MeasureRecord& m, double threshold,
-                 std::vector<std::string>& warnings) {
-    auto mass_at = [&](double x) {
-        const auto it = std::lower_bound(m.values.begin(), m.values.end(), x);
-        return it != m.values.end() && *it == x && !m.binned
-                   ? m.pmf[static_cast<std::size_t>(it - m.values.begin())]
-                   : 0.0;
-    };
-    if (v.lower) {
-        m.lower_bound = v.lower;
-        m.mass_at_lower = mass_at(*v.lower);
-    }
-    if (v.upper) {
-        m.upper_bound = v.upper;
-        m.mass_at_upper = mass_at(*v.upper);
-        if (*m.mass_at_upper > threshold)
-            warnings.push_back(fmt::format(
-                "P({} = {}) = {:.2e} at its declared upper bound exceeds {:.0e}: if the bound cuts "
-                "off an unbounded quantity the results are biased (widen it and solve again); a "
-                "real capacity needs no action",
-                v.name, *v.upper, *m.mass_at_upper, threshold));
-    }
+// Collective. Mass at a declared bound that is not negligible: the bound may cut
+// off an unbounded quantity (a queue that could grow), biasing every answer. The
+// masses are summed over the states, not read off the record's pmf, which holds
+// bins when the variable has many values.
+void note_bounds(MPI_Comm comm, const io::StateVariable& v, std::span<const double> pi,
+                 io::MeasureRecord& m, double threshold, std::vector<std::string>& warnings) {
+    summary::add_bound_masses(comm, m, v.values, pi, v.lower, v.upper);
+    if (m.mass_at_upper && *m.mass_at_upper > threshold)
+        warnings.push_back(fmt::format(
+            "P({} = {}) = {:.2e} at its declared upper bound exceeds {:.0e}: if the bound cuts "
+            "off an unbounded quantity the results are biased (widen it and solve again); a "
+            "real capacity needs no action",
+            v.name, *v.upper, *m.mass_at_upper, threshold));
 }
 
 } // namespace
@@ -221,7 +211,7 @@ SummaryReport run_summary(MPI_Comm comm, const SummaryRequest& request) {
         io::MeasureRecord m = summary::summarize_measure(
             comm, w.name, w.origin, table.column(w.name), pi, levels, conditions);
         if (w.variable)
-            note_bounds(*w.variable, m, report.truncation_threshold, report.warnings);
+            note_bounds(comm, *w.variable, pi, m, report.truncation_threshold, report.warnings);
         report.summary.measures.push_back(std::move(m));
     }
 

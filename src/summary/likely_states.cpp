@@ -1,5 +1,7 @@
 #include "likely_states.hpp"
 
+#include "io/mpi_gather.hpp"
+
 #include <algorithm>
 #include <cmath>
 #include <numeric>
@@ -38,16 +40,7 @@ std::vector<io::LikelyStateRecord> likely_states(MPI_Comm comm, const io::Chain&
         for (const auto& v : chain.variables)
             flat.push_back(i < v.values.size() ? v.values[i] : NAN);
     }
-    int size = 1;
-    MPI_Comm_size(comm, &size);
-    int count = static_cast<int>(flat.size());
-    std::vector<int> counts(size), displs(size, 0);
-    MPI_Allgather(&count, 1, MPI_INT, counts.data(), 1, MPI_INT, comm);
-    for (int r = 1; r < size; ++r)
-        displs[r] = displs[r - 1] + counts[r - 1];
-    std::vector<double> all(static_cast<std::size_t>(displs.back() + counts.back()));
-    MPI_Allgatherv(flat.data(), count, MPI_DOUBLE, all.data(), counts.data(), displs.data(),
-                   MPI_DOUBLE, comm);
+    const std::vector<double> all = gather_to_all<double>(comm, flat);
 
     std::vector<std::size_t> candidates(all.size() / width);
     std::iota(candidates.begin(), candidates.end(), std::size_t{0});

@@ -1,5 +1,7 @@
 #include "marginals.hpp"
 
+#include "io/mpi_gather.hpp"
+
 #include <algorithm>
 #include <cmath>
 #include <map>
@@ -18,16 +20,7 @@ std::map<double, double> gather_masses(MPI_Comm comm, const std::map<double, dou
         flat.push_back(v);
         flat.push_back(p);
     }
-    int size = 1;
-    MPI_Comm_size(comm, &size);
-    int count = static_cast<int>(flat.size());
-    std::vector<int> counts(size), displs(size, 0);
-    MPI_Allgather(&count, 1, MPI_INT, counts.data(), 1, MPI_INT, comm);
-    for (int r = 1; r < size; ++r)
-        displs[r] = displs[r - 1] + counts[r - 1];
-    std::vector<double> all(static_cast<std::size_t>(displs.back() + counts.back()));
-    MPI_Allgatherv(flat.data(), count, MPI_DOUBLE, all.data(), counts.data(), displs.data(),
-                   MPI_DOUBLE, comm);
+    const std::vector<double> all = gather_to_all<double>(comm, flat);
     std::map<double, double> merged;
     for (std::size_t i = 0; i + 1 < all.size(); i += 2)
         merged[all[i]] += all[i + 1];

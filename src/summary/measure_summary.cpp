@@ -1,6 +1,7 @@
 #include "measure_summary.hpp"
 
 #include "io/error.hpp"
+#include "io/mpi_gather.hpp"
 
 #include <fmt/format.h>
 
@@ -36,16 +37,7 @@ Distribution gather_distribution(MPI_Comm comm, std::span<const double> values,
         }
     }
 
-    int size = 1;
-    MPI_Comm_size(comm, &size);
-    int count = static_cast<int>(flat.size());
-    std::vector<int> counts(size), displs(size, 0);
-    MPI_Allgather(&count, 1, MPI_INT, counts.data(), 1, MPI_INT, comm);
-    for (int r = 1; r < size; ++r)
-        displs[r] = displs[r - 1] + counts[r - 1];
-    std::vector<double> all(static_cast<std::size_t>(displs.back() + counts.back()));
-    MPI_Allgatherv(flat.data(), count, MPI_DOUBLE, all.data(), counts.data(), displs.data(),
-                   MPI_DOUBLE, comm);
+    const std::vector<double> all = gather_to_all<double>(comm, flat);
 
     std::vector<std::pair<double, double>> pairs(all.size() / 2);
     for (std::size_t i = 0; i < pairs.size(); ++i)

@@ -49,28 +49,15 @@ double root_of(const std::function<double(double)>& f, double target, double lo,
     return 0.5 * (lo + hi);
 }
 
-constexpr const char* model_text = R"(kind: ctmc
-parameters: {arrival: 0.5, service: 1.0}
-variables:
-  queue: {from: 0, to: 10}
-start: {queue: 0}
-events:
-  - name: arrive
-    when: "queue < 10"
-    rate: arrival
-    then: {queue: "queue + 1"}
-  - name: leave
-    when: "queue > 0"
-    rate: service
-    then: {queue: "queue - 1"}
-)";
-
 class SweepJob : public MpiTest {
   protected:
+    // The M/M/1/K model shared with the end-to-end and batch-job tests (K = 10),
+    // copied so that the sweep's files stay in the scratch folder.
     std::string model_path() {
         const std::string path = folder + "/mm1k.yaml";
         if (rank == 0)
-            std::ofstream(path) << model_text;
+            std::filesystem::copy_file(LONGRUN_MM1K_MODEL, path,
+                                       std::filesystem::copy_options::overwrite_existing);
         MPI_Barrier(MPI_COMM_WORLD);
         return path;
     }

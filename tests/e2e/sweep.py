@@ -19,6 +19,7 @@ import csv
 import json
 import math
 import os
+import shutil
 import sys
 
 from e2e_common import check, finish, run
@@ -26,21 +27,9 @@ from e2e_common import check, finish, run
 K = 10
 AGREE = 1e-8
 
-MODEL = """kind: ctmc
-parameters: {arrival: 0.5, service: 1.0}
-variables:
-  queue: {from: 0, to: 10}
-start: {queue: 0}
-events:
-  - name: arrive
-    when: "queue < 10"
-    rate: arrival
-    then: {queue: "queue + 1"}
-  - name: leave
-    when: "queue > 0"
-    rate: service
-    then: {queue: "queue - 1"}
-"""
+# The M/M/1/K model (K = 10) shared with the C++ sweep test and the batch-job tests.
+MODEL_FILE = os.path.join(os.path.dirname(os.path.abspath(__file__)), os.pardir, "support",
+                          "models", "mm1k.yaml")
 
 
 def p_n(lam, n):
@@ -64,8 +53,7 @@ def main():
     out, ranks = sys.argv[1], int(sys.argv[2]) if len(sys.argv) > 2 else 1
     on = ranks if ranks > 1 else None
     model = os.path.join(out, "mm1k.yaml")
-    with open(model, "w") as f:
-        f.write(MODEL)
+    shutil.copyfile(MODEL_FILE, model)
     common = [model, "--vary", "arrival=0.5:1.5:0.1", "--tail", "full=queue==10",
               "--quantile", "queue:0.99", "--until", "P(full) > 0.05"]
 

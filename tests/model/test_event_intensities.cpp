@@ -1,9 +1,10 @@
 // What `generate` records beside the transitions: per event and state the rate
 // (probability) with which it fires, lost firings included, and the model's
 // parameters and text.
+#include "generated_chain.hpp"
+
 #include "model/explore.hpp"
 #include "model/model_file.hpp"
-#include "solve/gth.hpp"
 #include "support/test_chains.hpp"
 
 #include <gtest/gtest.h>
@@ -17,17 +18,7 @@
 namespace {
 
 using namespace longrun;
-
-std::vector<double> stationary(const io::Chain& c) {
-    solve::LocalRows rows{c.kind == io::ChainKind::ctmc ? solve::TimeModel::continuous
-                                                        : solve::TimeModel::discrete,
-                          c.states,
-                          c.rows,
-                          c.offsets,
-                          c.targets,
-                          c.weights};
-    return solve::gth_stationary(rows);
-}
+using model_testing::stationary;
 
 const io::Measure& intensity(const io::Chain& c, const std::string& event) {
     for (const auto& m : c.event_intensities)
@@ -37,10 +28,7 @@ const io::Measure& intensity(const io::Chain& c, const std::string& event) {
 }
 
 const std::vector<double>& queue_of(const io::Chain& c) {
-    for (const auto& v : c.variables)
-        if (v.name == "queue")
-            return v.values;
-    throw std::runtime_error("no variable queue");
+    return model_testing::variable(c, "queue").values;
 }
 
 // M/M/1/K where an arrival at a full queue is lost: "arrive" is enabled in

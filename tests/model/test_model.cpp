@@ -1,8 +1,9 @@
 // Model descriptions: generated chains against closed forms from the
 // literature, the exploration's own promises, and every error it reports.
+#include "generated_chain.hpp"
+
 #include "model/explore.hpp"
 #include "model/model_file.hpp"
-#include "solve/gth.hpp"
 #include "support/test_chains.hpp"
 
 #include "io/error.hpp"
@@ -17,28 +18,12 @@
 namespace {
 
 using namespace longrun;
+using model_testing::stationary;
+using model_testing::variable;
 
 io::Chain generate(const std::string& yaml, const model::Overrides& sets = {},
                    model::ExploreOptions options = {}, model::ExploreReport* report = nullptr) {
     return model::explore(model::parse_model(yaml, "model.yaml", sets), options, report);
-}
-
-std::vector<double> stationary(const io::Chain& c) {
-    solve::LocalRows rows{c.kind == io::ChainKind::ctmc ? solve::TimeModel::continuous
-                                                        : solve::TimeModel::discrete,
-                          c.states,
-                          c.rows,
-                          c.offsets,
-                          c.targets,
-                          c.weights};
-    return solve::gth_stationary(rows);
-}
-
-const io::StateVariable& variable(const io::Chain& c, const std::string& name) {
-    for (const auto& v : c.variables)
-        if (v.name == name)
-            return v;
-    throw std::runtime_error("no variable " + name);
 }
 
 // Probability of each value of one variable.

@@ -1,0 +1,22 @@
+// --method, --tol and --preconditioner: how a chain is solved, the same for
+// `solve` and for `sweep` (one solve per point).
+#pragma once
+
+#include <CLI/CLI.hpp>
+
+#include <string>
+
+namespace longrun::cli {
+
+struct SolverOptions {
+    std::string method = "auto"; // a method name or a comma list tried in order
+    double tolerance = 1e-10;    // on the certificate's residual
+    std::string preconditioner = "amg";
+};
+
+// One line per method for --help: "auto" and then the method table.
+std::string methods_help();
+
+void add_solver_options(CLI::App* sub, SolverOptions& options);
+
+} // namespace longrun::cli
