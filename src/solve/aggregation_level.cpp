@@ -7,8 +7,6 @@ namespace longrun::solve {
 
 namespace {
 
-using IsHandle = PetscHandle<IS, ISDestroy>;
-
 // Copies a sequential AIJ block's CSR (columns mapped by `map_column`).
 template <class MapColumn>
 void append_rows(Mat block, PetscInt rows, LocalCsr& out, MapColumn map_column) {
@@ -229,8 +227,16 @@ CoarseOperator::CoarseOperator(const AggregationLevel& fine, std::vector<PetscIn
     connect_level(c);
 }
 
-void CoarseOperator::numeric(AggregationLevel& fine) {
+void CoarseOperator::numeric(AggregationLevel& fine, double floor_ratio) {
     fine.update_ghosts();
+    PetscReal largest = 0;
+    if (floor_ratio > 0)
+        check(VecNorm(fine.x, NORM_INFINITY, &largest), "VecNorm");
+    // Relative to the level, not to each aggregate: an aggregate whose entries all
+    // underflowed has no scale of its own. Owned and ghost values share the one
+    // (global) floor, so every rank builds the same coarse chain.
+    floor_ = floor_ratio * largest;
+    const double lift = floor_;
     AggregationLevel& c = coarse_;
     std::fill(c.owned.value.begin(), c.owned.value.end(), 0.0);
     std::fill(c.ghost.value.begin(), c.ghost.value.end(), 0.0);
@@ -248,10 +254,10 @@ void CoarseOperator::numeric(AggregationLevel& fine) {
     };
     const std::size_t n_owned = fine.owned.column.size();
     for (std::size_t k = 0; k < n_owned; ++k)
-        add(owned_target_[k], fine.owned.value[k] * xv[fine.owned.column[k]]);
+        add(owned_target_[k], fine.owned.value[k] * std::max(xv[fine.owned.column[k]], lift));
     const std::size_t n_ghost = fine.ghost.column.size();
     for (std::size_t k = 0; k < n_ghost; ++k)
-        add(ghost_target_[k], fine.ghost.value[k] * gv[fine.ghost.column[k]]);
+        add(ghost_target_[k], fine.ghost.value[k] * std::max(gv[fine.ghost.column[k]], lift));
     check(VecRestoreArrayRead(fine.ghosts, &gv), "VecRestoreArrayRead");
     check(VecRestoreArrayRead(fine.x, &xv), "VecRestoreArrayRead");
 }
@@ -261,8 +267,15 @@ void CoarseOperator::prolong(AggregationLevel& fine) {
     const PetscScalar* cv = nullptr;
     check(VecGetArray(fine.x, &xv), "VecGetArray");
     check(VecGetArrayRead(coarse_.x, &cv), "VecGetArrayRead");
-    for (PetscInt i = 0; i < fine.local; ++i)
-        xv[i] *= cv[aggregate_[i]];
+    const double lift = floor_;
+    for (PetscInt i = 0; i < fine.local; ++i) {
+        // A lifted aggregate may get a huge factor while the chain is far from its
+        // answer (mass the coarse chain expects where the floor stands in for it);
+        // a product that overflows is dropped, so the sweeps see no inf or NaN.
+        const double scaled = std::max(xv[i], lift) * cv[aggregate_[i]];
+        if (std::isfinite(scaled) && scaled >= 0)
+            xv[i] = scaled;
+    }
     check(VecRestoreArrayRead(coarse_.x, &cv), "VecRestoreArrayRead");
     check(VecRestoreArray(fine.x, &xv), "VecRestoreArray");
 }

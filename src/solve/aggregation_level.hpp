@@ -15,8 +15,6 @@
 
 namespace longrun::solve {
 
-using ScatterHandle = PetscHandle<VecScatter, VecScatterDestroy>;
-
 struct LocalCsr {
     std::vector<PetscInt> row_start{0};
     std::vector<PetscInt> column;
@@ -59,9 +57,15 @@ class CoarseOperator {
     CoarseOperator(const AggregationLevel& fine, std::vector<PetscInt> aggregate, PetscInt count);
     AggregationLevel& coarse() { return coarse_; }
     const std::vector<PetscInt>& aggregate() const { return aggregate_; }
-    // Collective: coarse values from the fine level's x (ghosts are refreshed here).
-    void numeric(AggregationLevel& fine);
-    // Local: x_fine[i] *= x_coarse[aggregate(i)].
+    // Collective: coarse values from the fine level's x (ghosts are refreshed here),
+    // with x lifted to at least `floor_ratio` times its largest entry: w = max(x, floor).
+    // Where the stationary probabilities underflow, whole aggregates have x = 0; their
+    // coarse columns would vanish and the coarse chain could not leave them (GTH then
+    // finds it reducible). With w > 0 every level keeps the fine chain's connections.
+    // 0: no floor.
+    void numeric(AggregationLevel& fine, double floor_ratio);
+    // Local: x_fine[i] = w_i x_coarse[aggregate(i)], w as in the last numeric(), so
+    // that the correction is De Sterck et al.'s cycle applied to the lifted iterate.
     void prolong(AggregationLevel& fine);
 
   private:
@@ -70,6 +74,7 @@ class CoarseOperator {
     std::vector<PetscInt> owned_target_; // per fine owned entry: coarse position (>= 0 owned,
                                          // < 0: ghost position -1-p)
     std::vector<PetscInt> ghost_target_; // per fine ghost entry, same encoding
+    double floor_ = 0;                   // the lift of the last numeric()
 };
 
 } // namespace longrun::solve

@@ -58,6 +58,17 @@ std::vector<double> gth_stationary(const LocalRows& in) {
             v += pi[i] * at(i, k);
         pi[k] = v;
         total += v;
+        // pi[0] = 1 is only a scale: when state 0 is improbable the others can
+        // exceed the double range (a coarse chain whose aggregates span 10^-300
+        // and 1). Rescaling what is done so far keeps every ratio.
+        if (total > 1e250) {
+            const double scale = total;
+            total = 0;
+            for (std::size_t i = 0; i <= k; ++i) {
+                pi[i] /= scale;
+                total += pi[i];
+            }
+        }
     }
     for (auto& v : pi)
         v /= total;

@@ -13,5 +13,7 @@ using MatHandle = PetscHandle<Mat, MatDestroy>;
 using VecHandle = PetscHandle<Vec, VecDestroy>;
 using KspHandle = PetscHandle<KSP, KSPDestroy>;
 using EpsHandle = PetscHandle<EPS, EPSDestroy>;
+using IsHandle = PetscHandle<IS, ISDestroy>;
+using ScatterHandle = PetscHandle<VecScatter, VecScatterDestroy>;
 
 } // namespace longrun::solve

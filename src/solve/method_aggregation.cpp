@@ -12,7 +12,9 @@
 // prolongation), solve the coarse singular problem for one factor per
 // aggregate, scale the iterate by those factors, relax again. A_c has zero
 // column sums and non-negative off-diagonals whenever x > 0, so every level is
-// again a chain and Gauss-Seidel keeps the iterate positive.
+// again a chain and Gauss-Seidel keeps the iterate positive. Where probabilities
+// underflow to 0 (a long queue's tail) the weights are lifted to a floor relative
+// to the level (-aggregation_floor), so x > 0 holds for the coarse operators too.
 #include "aggregation_grouping.hpp"
 #include "aggregation_recombination.hpp"
 #include "gth.hpp"
@@ -43,7 +45,13 @@ struct AggregationOptions {
     PetscReal strength = 0.25;  // theta of strong connections
     PetscReal variable_strength = 0.1;
     PetscReal max_coarse_ratio = 0.85; // coarsening that keeps more than this stops
-    std::string grouping = "auto";     // auto | coordinates | strength
+    // Coarse operators weight with max(x, floor * max x) (CoarseOperator::numeric).
+    // 1e-200: far below any probability that moves the residual (the lift changes it
+    // by at most 2 max|a_ii| floor per state), far above the double range's end, so
+    // that rates times weights, GTH's ratios and the sweeps' quotients on coarse
+    // levels (bounded by about 1/floor) stay finite.
+    PetscReal floor_ratio = 1e-200;
+    std::string grouping = "auto"; // auto | coordinates | strength
 };
 
 AggregationOptions read_options() {
@@ -85,6 +93,10 @@ AggregationOptions read_options() {
           "PetscOptionsGetReal");
     check(PetscOptionsGetReal(nullptr, prefix, "-max_coarse_ratio", &o.max_coarse_ratio, nullptr),
           "PetscOptionsGetReal");
+    check(PetscOptionsGetReal(nullptr, prefix, "-floor", &o.floor_ratio, nullptr),
+          "PetscOptionsGetReal");
+    if (!(o.floor_ratio >= 0 && o.floor_ratio < 1))
+        throw UsageError("-aggregation_floor must be at least 0 and below 1");
     return o;
 }
 
@@ -120,7 +132,7 @@ class Hierarchy {
                 std::make_unique<CoarseOperator>(*current, std::move(g.aggregate), g.count));
             // The next grouping judges strength from this level's values, so they
             // must exist: weights from the iterate the hierarchy is built with.
-            operators_.back()->numeric(*current);
+            operators_.back()->numeric(*current, o.floor_ratio);
             current = &operators_.back()->coarse();
             check(VecSet(current->x, 1.0), "VecSet");
             if (keep_coordinates)
@@ -164,7 +176,7 @@ class Hierarchy {
         for (PetscInt k = 0; k < options_.pre_sweeps; ++k)
             here.sweep(true);
         CoarseOperator& op = *operators_[l];
-        op.numeric(here);
+        op.numeric(here, options_.floor_ratio);
         check(VecSet(op.coarse().x, 1.0), "VecSet"); // the factors start at "no change"
         const int visits = options_.w_cycle ? 2 : 1;
         for (int v = 0; v < visits; ++v)
@@ -230,7 +242,15 @@ class Hierarchy {
         for (std::uint64_t i = 0; i < n; ++i)
             offsets[i + 1] += offsets[i];
         LocalRows rows{TimeModel::continuous, n, RowRange{0, n}, offsets, targets, weights};
-        const std::vector<double> pi = gth_stationary(rows);
+        std::vector<double> pi;
+        try {
+            pi = gth_stationary(rows);
+        } catch (Error& e) {
+            // Every rank eliminated the same gathered chain and failed alike: the
+            // strategy may go on to its next method without a rank left waiting.
+            e.mark_agreed();
+            throw;
+        }
         PetscScalar* y = nullptr;
         check(VecGetArray(c.x, &y), "VecGetArray");
         for (PetscInt I = 0; I < c.local; ++I)

@@ -186,19 +186,25 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
             out.iterations += at.iterations;
             if (at.x && is_better(at.certificate, best))
                 best = std::move(at);
-        } catch (const LibraryError& e) {
-            // A breakdown in one method is a reason to try the next one, but only
-            // alone: with several ranks the error may have hit this rank only,
-            // while the others still wait inside the method's collective calls.
-            // Passing it on makes the front end abort the job instead of hanging.
-            int ranks = 1;
-            MPI_Comm_size(PetscObjectComm((PetscObject)a.matrix.get()), &ranks);
-            if (ranks > 1)
-                throw;
-            record.outcome = std::string("failed: ") + e.what();
         } catch (const MethodDeclined& e) {
             // Agreed on every rank by the method (size or memory limits): skip it.
             record.outcome = std::string("skipped: ") + e.what();
+        } catch (const Error& e) {
+            // A numerical failure inside one method (a breakdown in PETSc, a coarse
+            // chain GTH cannot eliminate) is a reason to try the next one: `auto`
+            // and comma lists promise to fall back on failure. Bad input, a wrong
+            // option and a stop signal concern every method alike and end the run.
+            if (e.code() != ExitCode::numerical)
+                throw;
+            // With several ranks the error may have hit this rank only, while the
+            // others still wait inside the method's collective calls: unless the
+            // method says every rank threw it, passing it on makes the front end
+            // abort the job instead of hanging.
+            int ranks = 1;
+            MPI_Comm_size(PetscObjectComm((PetscObject)a.matrix.get()), &ranks);
+            if (ranks > 1 && !e.agreed())
+                throw;
+            record.outcome = std::string("failed: ") + e.what();
         }
         record.seconds =
             std::chrono::duration<double>(std::chrono::steady_clock::now() - started).count();
