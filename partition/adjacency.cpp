@@ -1,8 +1,10 @@
 #include "adjacency.hpp"
 
+#include "agreement.hpp"
 #include "lookup.hpp"
 
 #include <algorithm>
+#include <stdexcept>
 #include <utility>
 
 namespace longrun::partition {
@@ -13,15 +15,22 @@ Adjacency symmetrised_adjacency(MPI_Comm comm, const CsrView& csr,
     MPI_Comm_size(comm, &size);
     // (target, source) pairs for the rank holding the target.
     std::vector<std::vector<std::uint64_t>> outgoing(static_cast<std::size_t>(size));
-    for (std::uint64_t i = 0; i < csr.rows.size(); ++i)
-        for (std::uint64_t k = csr.offsets[i]; k < csr.offsets[i + 1]; ++k) {
-            const std::uint64_t j = csr.targets[k], source = csr.rows.begin + i;
-            if (j == source)
-                continue;
-            auto& bucket = outgoing[static_cast<std::size_t>(owner_of(ranges, j))];
-            bucket.push_back(j);
-            bucket.push_back(source);
-        }
+    bool targets_owned = true;
+    try {
+        for (std::uint64_t i = 0; i < csr.rows.size(); ++i)
+            for (std::uint64_t k = csr.offsets[i]; k < csr.offsets[i + 1]; ++k) {
+                const std::uint64_t j = csr.targets[k], source = csr.rows.begin + i;
+                if (j == source)
+                    continue;
+                auto& bucket = outgoing[static_cast<std::size_t>(owner_of(ranges, j))];
+                bucket.push_back(j);
+                bucket.push_back(source);
+            }
+    } catch (const std::out_of_range&) {
+        targets_owned = false;
+    }
+    agree_or_throw(comm, targets_owned,
+                   "symmetrised adjacency: a transition points outside every rank's rows");
     std::vector<int> send_counts(static_cast<std::size_t>(size)),
         receive_counts(static_cast<std::size_t>(size));
     std::vector<std::uint64_t> flat;

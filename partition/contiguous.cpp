@@ -64,9 +64,28 @@ std::vector<RowRange> gather_ranges(MPI_Comm comm, RowRange mine) {
     std::uint64_t pair[2] = {mine.begin, mine.end};
     MPI_Allgather(pair, 2, MPI_UINT64_T, flat.data(), 2, MPI_UINT64_T, comm);
     std::vector<RowRange> out;
-    for (int r = 0; r < size; ++r)
-        out.push_back({flat[2 * r], flat[2 * r + 1]});
+    std::uint64_t covered = 0;
+    for (int r = 0; r < size; ++r) {
+        RowRange range{flat[2 * r], flat[2 * r + 1]};
+        if (range.empty())
+            range = {covered, covered};
+        else
+            covered = range.end;
+        out.push_back(range);
+    }
     return out;
+}
+
+bool ranges_cover_in_order(const std::vector<RowRange>& ranges, std::uint64_t states) {
+    std::uint64_t next = 0;
+    for (const RowRange& range : ranges) {
+        if (range.empty())
+            continue;
+        if (range.begin != next || range.end < range.begin)
+            return false;
+        next = range.end;
+    }
+    return next == states;
 }
 
 } // namespace longrun::partition

@@ -27,7 +27,14 @@ RowRange balance_by_nonzeros(MPI_Comm comm, RowRange even,
                              const std::vector<std::uint64_t>& offsets_slice, std::uint64_t states,
                              std::uint64_t transitions);
 
-// All ranks' ranges from one rank's: collective (allgather).
+// All ranks' ranges from one rank's: collective (allgather). An empty range is
+// placed where the rows before it end ({e, e}), whatever its begin was, so that
+// begins never decrease and owner_of's search holds (rows forced per rank may
+// give the empty ones any begin).
 std::vector<RowRange> gather_ranges(MPI_Comm comm, RowRange mine);
+
+// Whether the non-empty ranges follow each other in rank order and cover
+// [0, states) exactly, as PETSc's layout and every lookup here assume.
+bool ranges_cover_in_order(const std::vector<RowRange>& ranges, std::uint64_t states);
 
 } // namespace longrun::partition

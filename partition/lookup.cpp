@@ -1,5 +1,7 @@
 #include "lookup.hpp"
 
+#include "agreement.hpp"
+
 #include <algorithm>
 #include <stdexcept>
 
@@ -41,8 +43,14 @@ std::vector<std::uint64_t> look_up(MPI_Comm comm, const std::vector<RowRange>& r
     std::sort(wanted.begin(), wanted.end());
     wanted.erase(std::unique(wanted.begin(), wanted.end()), wanted.end());
     std::vector<int> send_counts(static_cast<std::size_t>(size), 0);
-    for (std::uint64_t k : wanted)
-        ++send_counts[static_cast<std::size_t>(owner_of(ranges, k))];
+    bool keys_owned = true;
+    try {
+        for (std::uint64_t k : wanted)
+            ++send_counts[static_cast<std::size_t>(owner_of(ranges, k))];
+    } catch (const std::out_of_range&) {
+        keys_owned = false;
+    }
+    agree_or_throw(comm, keys_owned, "lookup: a row outside every rank's rows");
     std::vector<int> receive_counts(static_cast<std::size_t>(size), 0);
     MPI_Alltoall(send_counts.data(), 1, MPI_INT, receive_counts.data(), 1, MPI_INT, comm);
     const auto send_displs = displacements(send_counts);

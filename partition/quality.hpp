@@ -22,6 +22,9 @@ struct Quality {
     // the ranks, and the largest single rank's share.
     std::uint64_t volume = 0;
     std::uint64_t max_volume = 0;
+    // Distinct transitions i -> j with i and j on different ranks: the nonzeros
+    // of the off-diagonal blocks of A (what the products' ghost updates feed).
+    std::uint64_t off_rank_nonzeros = 0;
     // Largest rank's nonzeros over the mean, nonzeros = transitions + one diagonal
     // entry per row (the cost partition/contiguous balances).
     double imbalance = 1;
@@ -33,6 +36,8 @@ struct Quality {
 // comm size - 1.
 Quality measure_quality(MPI_Comm comm, const CsrView& csr, const Adjacency& adjacency,
                         const std::vector<RowRange>& ranges, std::span<const std::uint64_t> part);
+
+// (The rows as they are held are measured more cheaply by contiguous_quality.)
 
 // The part vector of the current contiguous layout: every row stays put.
 std::vector<std::uint64_t> parts_in_place(MPI_Comm comm, RowRange rows);

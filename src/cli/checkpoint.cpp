@@ -32,7 +32,11 @@ bool CheckpointWriter::due() {
 }
 
 bool CheckpointWriter::write(Vec x, const std::string& method, long iteration, std::string& why) {
-    std::vector<double> local(rows_.size());
+    // On moved rows the vector holds this rank's rows of the solve, not rows_.
+    PetscInt held = static_cast<PetscInt>(rows_.size());
+    if (to_file_order_)
+        (void)VecGetLocalSize(x, &held); // fails only on a corrupt Vec
+    std::vector<double> local(static_cast<std::size_t>(held));
     const PetscScalar* v = nullptr;
     double mine = 0;
     if (VecGetArrayRead(x, &v) == 0) {
@@ -48,6 +52,8 @@ bool CheckpointWriter::write(Vec x, const std::string& method, long iteration, s
         why = "no iterate worth keeping yet";
         return false;
     }
+    if (to_file_order_)
+        local = to_file_order_(local);
     for (double& p : local)
         p /= total;
     io::CheckpointInfo info = info_;

@@ -16,7 +16,10 @@
 #include <mpi.h>
 
 #include <chrono>
+#include <functional>
+#include <span>
 #include <string>
+#include <vector>
 
 namespace longrun::cli {
 
@@ -32,6 +35,11 @@ class CheckpointWriter : public solve::IterateSink {
     // `x` (may be null) is the iterate to keep. Returns when no rank got a signal.
     void stop_if_signalled(Vec x, const std::string& method, long iteration);
     long written() const noexcept { return written_; }
+    // Collective translation of this rank's iterate from the solve's row order to
+    // the chain file's, for a solve on moved rows (graph layout): checkpoints are
+    // always stored in file order, so any layout and rank count can resume them.
+    using ToFileOrder = std::function<std::vector<double>(std::span<const double>)>;
+    void set_file_order(ToFileOrder to_file_order) { to_file_order_ = std::move(to_file_order); }
     const std::string& path() const noexcept { return path_; }
 
   private:
@@ -46,6 +54,7 @@ class CheckpointWriter : public solve::IterateSink {
     bool enabled_ = true;
     long written_ = 0;
     int stop_signal_ = 0; // agreed: the same on every rank
+    ToFileOrder to_file_order_;
 
     // Writes x; false (with the reason in `why`) when nothing was written.
     bool write(Vec x, const std::string& method, long iteration, std::string& why);

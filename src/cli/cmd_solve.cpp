@@ -2,10 +2,9 @@
 #include "commands.hpp"
 #include "paths.hpp"
 #include "report.hpp"
+#include "solver_options.hpp"
 
 #include "io/mpi_agree.hpp"
-
-#include <fmt/format.h>
 
 #include <cstdio>
 #include <memory>
@@ -16,9 +15,9 @@ namespace {
 
 struct SolveOptions {
     SolveRequest request;
+    SolverOptions solver;
     std::string output;
-    std::string preconditioner = "amg";
-    std::string partition = "contiguous";
+    std::string partition = "auto";
     bool json = false;
     bool quiet = false;
     std::optional<std::uint64_t> start_state;
@@ -34,7 +33,9 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
         require_writable_folder(o.output);
         o.request.output = o.output;
     }
-    o.request.preconditioner = solve::preconditioner_named(o.preconditioner);
+    o.request.method = o.solver.method;
+    o.request.tolerance = o.solver.tolerance;
+    o.request.preconditioner = solve::preconditioner_named(o.solver.preconditioner);
     o.request.partition = *partition::parse_layout(o.partition);
     o.request.progress = !o.quiet;
     if ((o.start_state || o.start_distribution) && !o.request.per_class)
@@ -71,13 +72,6 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
 
 } // namespace
 
-std::string methods_help() {
-    std::string text = "  auto          size, kind and structure decide; falls back on failure\n";
-    for (const auto& m : solve::method_table())
-        text += fmt::format("  {:<13} {}\n", m.name, m.summary);
-    return text;
-}
-
 Action add_solve(CLI::App& app) {
     auto o = std::make_shared<SolveOptions>();
     auto* sub = app.add_subcommand(
@@ -102,31 +96,15 @@ Action add_solve(CLI::App& app) {
     sub->add_option("-o,--output", o->output,
                     "result file to write (HDF5); written under a temporary name and renamed "
                     "when complete");
-    sub->add_option("--method", o->request.method,
-                    "a method, or several separated by commas and tried in order (see above)")
-        ->default_val("auto")
-        ->check([](const std::string& v) -> std::string {
-            try {
-                (void)solve::plan_for(v, {});
-            } catch (const Error& e) {
-                return e.what();
-            }
-            return "";
-        });
-    sub->add_option("--tol", o->request.tolerance, "certificate tolerance on the residual")
-        ->default_val(1e-10)
-        ->check(CLI::PositiveNumber);
-    sub->add_option("--preconditioner", o->preconditioner,
-                    "for linear: amg (hypre BoomerAMG), ilu (block-Jacobi/ILU(0)), asm (additive "
-                    "Schwarz, ILU(0) on overlapping blocks), lu (MUMPS)")
-        ->default_val("amg")
-        ->check(CLI::IsMember({"amg", "ilu", "asm", "lu"}));
+    add_solver_options(sub, o->solver);
     sub->add_option("--partition", o->partition,
                     "rows per rank during the solve: contiguous (blocks of the file's order), "
                     "graph (PT-Scotch on the symmetrised transition graph; rows are moved, "
-                    "results stay in file order), auto (graph when it at least halves the "
-                    "vector entries exchanged per product without adding imbalance)")
-        ->default_val("contiguous")
+                    "results stay in file order), auto (contiguous unless its busiest rank "
+                    "receives at least 1% of its nonzeros in vector entries per product; then "
+                    "graph when that at least halves the entries exchanged without adding "
+                    "imbalance)")
+        ->default_val("auto")
         ->check(CLI::IsMember({"auto", "contiguous", "graph"}));
     add_validation_options(sub, o->request.validation);
     sub->add_flag("--no-analysis{false}", o->request.analyse_structure,

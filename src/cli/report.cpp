@@ -22,11 +22,9 @@ std::string bytes(std::uint64_t b) {
 nlohmann::json quality_json(const std::optional<partition::Quality>& q) {
     if (!q)
         return nullptr;
-    return {{"edge_cut", q->edge_cut},
-            {"volume", q->volume},
-            {"max_volume", q->max_volume},
-            {"imbalance", q->imbalance},
-            {"max_nonzeros", q->max_nonzeros}};
+    return {{"edge_cut", q->edge_cut},     {"volume", q->volume},
+            {"max_volume", q->max_volume}, {"off_rank_nonzeros", q->off_rank_nonzeros},
+            {"imbalance", q->imbalance},   {"max_nonzeros", q->max_nonzeros}};
 }
 
 nlohmann::json partition_json(const PartitionOutcome& p) {
@@ -34,6 +32,7 @@ nlohmann::json partition_json(const PartitionOutcome& p) {
             {"used", partition::to_string(p.used)},
             {"reason", p.reason},
             {"seconds", p.seconds},
+            {"measure_seconds", p.measure_seconds},
             {"contiguous", quality_json(p.contiguous)},
             {"graph", quality_json(p.graph)}};
 }
@@ -128,6 +127,9 @@ nlohmann::json to_json(const SolveReport& r) {
                               {"reversible", r.reversible},
                               {"verdict", r.reversibility_verdict}};
     j["wall_seconds"] = r.wall_seconds;
+    j["phase_seconds"] = nlohmann::json::array();
+    for (const auto& [phase, seconds] : r.phase_seconds)
+        j["phase_seconds"].push_back({{"phase", phase}, {"seconds", seconds}});
     j["peak_memory_bytes_per_rank"] = r.peak_memory_bytes;
     nlohmann::json vars = nlohmann::json::array();
     for (const auto& m : r.variables) {

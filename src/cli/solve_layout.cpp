@@ -2,6 +2,7 @@
 
 #include "partition/adjacency.hpp"
 #include "partition/contiguous.hpp"
+#include "partition/contiguous_quality.hpp"
 #include "partition/graph_partition.hpp"
 #include "partition/quality.hpp"
 
@@ -15,7 +16,12 @@ namespace longrun::cli {
 namespace {
 
 std::string describe(const partition::Quality& q) {
-    return fmt::format("volume {}, cut {}, imbalance {:.3f}", q.volume, q.edge_cut, q.imbalance);
+    return fmt::format("volume {}, off-rank nonzeros {}, cut {}, imbalance {:.3f}", q.volume,
+                       q.off_rank_nonzeros, q.edge_cut, q.imbalance);
+}
+
+double seconds_since(std::chrono::steady_clock::time_point start) {
+    return std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
 }
 
 } // namespace
@@ -31,29 +37,38 @@ SolveLayout::SolveLayout(MPI_Comm comm, const io::Chain& chain, const solve::Loc
         outcome_.reason = "one rank: nothing to partition";
         return;
     }
-    // Contiguous blocks need no measuring: the default path stays as fast as it was
-    // (building the adjacency for the quality numbers costs seconds on 10^6 states).
-    if (requested == Layout::contiguous) {
-        outcome_.reason = "contiguous blocks (--partition auto or graph tries PT-Scotch)";
-        return;
-    }
     const auto start = std::chrono::steady_clock::now();
     const partition::CsrView csr{chain.states, chain.rows, chain.offsets, chain.targets};
     const std::vector<RowRange> ranges = partition::gather_ranges(comm, chain.rows);
-    const partition::Adjacency adjacency = partition::symmetrised_adjacency(comm, csr, ranges);
-    outcome_.contiguous = partition::measure_quality(comm, csr, adjacency, ranges,
-                                                     partition::parts_in_place(comm, chain.rows));
+    // Every rank holds the same ranges, so every rank takes the same branch.
+    if (!partition::ranges_cover_in_order(ranges, chain.states)) {
+        outcome_.reason = "rows kept as read (not in rank order), not measured";
+        outcome_.seconds = seconds_since(start);
+        return;
+    }
+    // The rows as read are measured from their own targets: one pass, all the
+    // gate below needs, cheap enough for every multi-rank solve.
+    outcome_.contiguous = partition::contiguous_quality(comm, csr, ranges);
+    outcome_.measure_seconds = seconds_since(start);
+    const bool tries_graph =
+        requested != Layout::contiguous && blocker.empty() &&
+        (requested == Layout::graph || partition::communication_visible(*outcome_.contiguous));
+    // The edge cut comes from the adjacency when that is built anyway, else from
+    // one exchange of the off-rank transitions.
+    if (!tries_graph)
+        outcome_.contiguous->edge_cut = partition::contiguous_edge_cut(comm, csr, ranges);
     if (requested == Layout::contiguous) {
         outcome_.reason = "requested";
     } else if (!blocker.empty()) {
         outcome_.reason = "graph partition not used: " + blocker;
-    } else if (requested == Layout::automatic &&
-               !partition::communication_visible(*outcome_.contiguous)) {
+    } else if (!tries_graph) {
         outcome_.reason = fmt::format(
             "contiguous kept: the busiest rank receives {} vector entries per product against "
             "{} nonzeros, too few to partition for",
             outcome_.contiguous->max_volume, outcome_.contiguous->max_nonzeros);
     } else {
+        const partition::Adjacency adjacency = partition::symmetrised_adjacency(comm, csr, ranges);
+        outcome_.contiguous->edge_cut = partition::edge_cut_in_place(comm, adjacency);
         std::vector<std::uint64_t> parts;
         std::string failure;
         try {
@@ -90,8 +105,7 @@ SolveLayout::SolveLayout(MPI_Comm comm, const io::Chain& chain, const solve::Loc
             }
         }
     }
-    outcome_.seconds =
-        std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
+    outcome_.seconds = seconds_since(start);
 }
 
 std::vector<double> SolveLayout::to_solve_order(std::span<const double> file_order) const {

@@ -25,7 +25,8 @@ struct PartitionOutcome {
     partition::Layout used = partition::Layout::contiguous;
     std::string reason;
     std::optional<partition::Quality> contiguous, graph; // absent on one rank
-    double seconds = 0; // adjacency, partitioner and moving the rows
+    double seconds = 0;         // measuring, adjacency, partitioner and moving the rows
+    double measure_seconds = 0; // the contiguous numbers alone (what auto's gate costs)
 };
 
 class SolveLayout {

@@ -334,6 +334,14 @@ solve::ChainTraits traits_of(MPI_Comm comm, const io::Chain& chain, solve::TimeM
 
 SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     const auto start = std::chrono::steady_clock::now();
+    SolveReport report;
+    auto phase_start = start;
+    const auto phase_done = [&](const char* name) {
+        const auto now = std::chrono::steady_clock::now();
+        report.phase_seconds.emplace_back(name,
+                                          std::chrono::duration<double>(now - phase_start).count());
+        phase_start = now;
+    };
     solve::Progress progress(comm, request.progress);
     // The method list is checked before any file is touched.
     (void)solve::plan_for(request.method, {});
@@ -341,7 +349,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     LoadedChain loaded =
         load_chain(request.chain_path, comm, request.validation, request.forced_rows);
     const io::Chain& chain = loaded.chain;
-    SolveReport report;
+    phase_done("read");
     report.chain_path = request.chain_path;
     report.kind = chain.kind;
     report.states = chain.states;
@@ -378,18 +386,20 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         }
         progress.note("structure: " + words.verdict);
         stop_if_signalled(comm, "checking the chain's structure");
+        phase_done("structure");
     }
-    // Per-class solves and checkpoints index the solve's vectors by file rows.
-    const bool file_order_only =
-        (report.structure && !report.structure->unique()) || request.checkpoint || request.resume;
+    // Per-class solves index the solve's vectors by file rows. (Checkpoints and
+    // resumes are translated to and from file order, so they allow moved rows.)
+    const bool file_order_only = report.structure && !report.structure->unique();
     const SolveLayout layout(comm, chain, rows, request.partition,
-                             file_order_only ? "per-class solve or checkpoints need file order"
-                                             : "");
+                             file_order_only ? "a per-class solve needs file order" : "");
     report.partition = layout.outcome();
     if (report.ranks > 1)
         progress.note(fmt::format("partition: {} ({})", partition::to_string(layout.outcome().used),
                                   layout.outcome().reason));
+    phase_done("partition");
     solve::TransposedChain a = solve::assemble_transposed(comm, layout.rows());
+    phase_done("assemble");
     report.residual_definition = solve::residual_definition(rows.time);
 
     solve::MethodSettings settings;
@@ -471,8 +481,12 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
             progress.note("per-class solve: no checkpoints are written");
         checkpoints.emplace(comm, several ? std::string() : checkpoint_path.value_or(""),
                             request.checkpoint_every, info, chain.rows, &progress);
+        if (layout.moved())
+            checkpoints->set_file_order(
+                [&layout](std::span<const double> v) { return layout.to_file_order(v); });
         settings.checkpoint = &*checkpoints;
     }
+    phase_done("start");
     io::LocalClassData class_data;
     if (several) {
         solve_per_class(comm, request, chain, rows, a, settings, report, class_data);
@@ -503,6 +517,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
             summary::reversibility_verdict(balance, report.certificate.residual);
     }
 
+    phase_done("solve");
     if (report.has_distribution)
         for (const auto& v : chain.variables) {
             report.variables.push_back(
@@ -519,6 +534,8 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
                 note.variable, note.bound, note.mass, note.upper ? "upper" : "lower",
                 request.truncation_threshold));
 
+    phase_done("summaries");
+    // Up to here, as the result file records it; the write is the last phase.
     report.wall_seconds =
         std::chrono::duration<double>(std::chrono::steady_clock::now() - start).count();
     report.peak_memory_bytes = peak_memory_bytes(comm);
@@ -530,6 +547,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
                               chain.rows, chain.states, report.local_pi,
                               several ? &class_data : nullptr);
         report.output = request.output;
+        phase_done("write");
     }
     return report;
 }

@@ -29,7 +29,7 @@ struct SolveRequest {
     bool progress = true;
     std::optional<RowRange> forced_rows; // tests: override the partition
     // Rows during the solve: contiguous blocks, a graph partition, or auto.
-    partition::Layout partition = partition::Layout::contiguous;
+    partition::Layout partition = partition::Layout::automatic;
     bool analyse_structure = true; // off only for chains too large to gather
     // Several closed classes: solve each on its own instead of stopping (exit 3).
     bool per_class = false;
@@ -95,6 +95,10 @@ struct SolveReport {
     double tolerance = 0;
     std::string residual_definition;
     double wall_seconds = 0;
+    // Seconds per phase in the order they ran (rank 0's clock; every phase ends in
+    // a collective call, so it is also the slowest rank's): where a run's time goes
+    // and which phases scale with the rank count.
+    std::vector<std::pair<std::string, double>> phase_seconds;
     std::uint64_t peak_memory_bytes = 0;
     std::vector<summary::Marginal> variables;
     std::vector<TruncationNote> truncation;

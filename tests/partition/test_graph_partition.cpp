@@ -1,10 +1,11 @@
-// The graph partition's pieces on real ranks: quality numbers against a small
-// example counted by hand, the partitioner against contiguous blocks on a
-// scrambled lattice and on a lexicographic grid, and rows moved and back.
+// The graph partition's pieces on real ranks: quality numbers against small
+// examples counted by hand (from the adjacency and straight from the rows), the partitioner against
+// contiguous blocks on a scrambled lattice and on a lexicographic grid, and rows moved and back.
 #include "../support/test_chains.hpp"
 #include "partition/adjacency.hpp"
 #include "partition/choice.hpp"
 #include "partition/contiguous.hpp"
+#include "partition/contiguous_quality.hpp"
 #include "partition/graph_partition.hpp"
 #include "partition/quality.hpp"
 #include "partition/redistribution.hpp"
@@ -116,6 +117,102 @@ TEST(Quality, RingWithChordInContiguousBlocks) {
         EXPECT_DOUBLE_EQ(q.imbalance, 15.0 / 13.0);
         break;
     }
+}
+
+// The same numbers without the adjacency, plus the off-rank nonzeros (counted
+// by hand: the transitions 2->3, 5->0, 0->3 cross on 2 ranks; 1->2, 3->4, 5->0,
+// 0->3 on 3).
+TEST(ContiguousQuality, RingWithChordCountedByHand) {
+    const io::Chain whole = ring_with_chord();
+    const RowRange rows = partition::even_rows(6, world_size(), world_rank());
+    const Slice s = slice_of(whole, rows);
+    const auto ranges = partition::gather_ranges(MPI_COMM_WORLD, rows);
+    const auto q = partition::contiguous_quality(MPI_COMM_WORLD, s.view(6), ranges);
+    const auto expected = ring_quality(false);
+    EXPECT_EQ(partition::contiguous_edge_cut(MPI_COMM_WORLD, s.view(6), ranges), expected.edge_cut);
+    EXPECT_EQ(q.volume, expected.volume);
+    EXPECT_EQ(q.max_volume, expected.max_volume);
+    EXPECT_EQ(q.max_nonzeros, expected.max_nonzeros);
+    EXPECT_DOUBLE_EQ(q.imbalance, expected.imbalance);
+    EXPECT_EQ(q.off_rank_nonzeros, expected.off_rank_nonzeros);
+    const std::uint64_t off_by_hand[] = {0, 0, 3, 4};
+    EXPECT_EQ(q.off_rank_nonzeros, off_by_hand[world_size()]);
+}
+
+// Transitions both ways between neighbours: each pair crossing a block border is
+// one cut edge but two off-rank nonzeros. M/M/1/29 (30 states, counted by hand):
+// 2 ranks {0..14} | {15..29}: cut {14,15}, x14 and x15 cross; 3 ranks {0..9} |
+// {10..19} | {20..29}: cuts {9,10} and {19,20}, the middle rank receives x9, x20.
+TEST(ContiguousQuality, BirthDeathBordersCountedByHand) {
+    const io::Chain whole = testing_support::birth_death(1, 29, 1.0, 2.0);
+    ASSERT_EQ(whole.states, 30u);
+    const RowRange rows = partition::even_rows(30, world_size(), world_rank());
+    const Slice s = slice_of(whole, rows);
+    const auto ranges = partition::gather_ranges(MPI_COMM_WORLD, rows);
+    const auto q = partition::contiguous_quality(MPI_COMM_WORLD, s.view(30), ranges);
+    const std::uint64_t borders = static_cast<std::uint64_t>(world_size()) - 1;
+    EXPECT_EQ(partition::contiguous_edge_cut(MPI_COMM_WORLD, s.view(30), ranges), borders);
+    EXPECT_EQ(q.off_rank_nonzeros, 2 * borders);
+    EXPECT_EQ(q.volume, 2 * borders);
+    EXPECT_EQ(q.max_volume, std::min<std::uint64_t>(borders, 2));
+}
+
+// All rows on the last rank, the others holding empty ranges that start past the
+// end (as rows forced per rank may): no rank may wait for another that threw.
+TEST(ContiguousQuality, AllRowsOnTheLastRank) {
+    const io::Chain whole = ring_with_chord();
+    const RowRange rows = world_rank() == world_size() - 1 ? RowRange{0, 6} : RowRange{6, 6};
+    const Slice s = slice_of(whole, rows);
+    const auto ranges = partition::gather_ranges(MPI_COMM_WORLD, rows);
+    EXPECT_TRUE(partition::ranges_cover_in_order(ranges, 6));
+    const auto q = partition::contiguous_quality(MPI_COMM_WORLD, s.view(6), ranges);
+    EXPECT_EQ(q.volume, 0u);
+    EXPECT_EQ(partition::contiguous_edge_cut(MPI_COMM_WORLD, s.view(6), ranges), 0u);
+    EXPECT_EQ(q.off_rank_nonzeros, 0u);
+    EXPECT_EQ(q.max_nonzeros, 13u);
+    EXPECT_DOUBLE_EQ(q.imbalance, double(world_size()));
+    const auto adjacency = partition::symmetrised_adjacency(MPI_COMM_WORLD, s.view(6), ranges);
+    std::uint64_t edges = adjacency.neighbours.size();
+    MPI_Allreduce(MPI_IN_PLACE, &edges, 1, MPI_UINT64_T, MPI_SUM, MPI_COMM_WORLD);
+    EXPECT_EQ(edges, 14u); // 7 undirected edges, each seen from both ends
+    const auto parts = partition::graph_parts(MPI_COMM_WORLD, s.view(6), adjacency);
+    const auto graph =
+        partition::measure_quality(MPI_COMM_WORLD, s.view(6), adjacency, ranges, parts);
+    EXPECT_LE(graph.edge_cut, 7u);
+}
+
+// A target outside the chain on one rank only: every rank throws, none hangs.
+TEST(ContiguousQuality, BadTargetOnOneRankThrowsOnEveryRank) {
+    const io::Chain whole = ring_with_chord();
+    const RowRange rows = partition::even_rows(6, world_size(), world_rank());
+    Slice s = slice_of(whole, rows);
+    if (world_rank() == world_size() - 1)
+        s.targets.back() = 9;
+    const auto ranges = partition::gather_ranges(MPI_COMM_WORLD, rows);
+    int threw = 0;
+    try {
+        (void)partition::contiguous_quality(MPI_COMM_WORLD, s.view(6), ranges);
+    } catch (const std::runtime_error&) {
+        threw += 1;
+    }
+    try {
+        (void)partition::contiguous_edge_cut(MPI_COMM_WORLD, s.view(6), ranges);
+    } catch (const std::runtime_error&) {
+        threw += 1;
+    }
+    try {
+        (void)partition::symmetrised_adjacency(MPI_COMM_WORLD, s.view(6), ranges);
+    } catch (const std::runtime_error&) {
+        threw += 1;
+    }
+    EXPECT_EQ(threw, 3);
+}
+
+TEST(ContiguousQuality, RangesOutOfRankOrderAreRecognised) {
+    EXPECT_TRUE(partition::ranges_cover_in_order({{0, 0}, {0, 4}, {4, 4}, {4, 6}}, 6));
+    EXPECT_FALSE(partition::ranges_cover_in_order({{3, 6}, {0, 3}}, 6));
+    EXPECT_FALSE(partition::ranges_cover_in_order({{0, 3}, {4, 6}}, 6));
+    EXPECT_FALSE(partition::ranges_cover_in_order({{0, 3}}, 6));
 }
 
 // Rows scattered (state i to rank i mod ranks), so every lookup crosses ranks.
@@ -272,6 +369,38 @@ TEST(GraphPartition, FewerStatesThanRanksIsRefusedOnEveryRank) {
         threw = 1;
     }
     EXPECT_EQ(threw, world_size() > 2 ? 1 : 0);
+}
+
+// On a graph with no order at all, every number equals the adjacency-based one,
+// also when one rank holds no rows and the others' ranges say nothing about it.
+TEST(ContiguousQuality, AgreesWithTheAdjacencyOnAScrambledLattice) {
+    std::uint64_t n = 0;
+    const auto edges = scrambled_lattice(12, n);
+    const io::Chain whole = testing_support::graph_walk(n, edges);
+    for (const bool first_rank_empty : {false, true}) {
+        const RowRange rows = !first_rank_empty || world_size() == 1
+                                  ? partition::even_rows(n, world_size(), world_rank())
+                              : world_rank() == 0
+                                  ? RowRange{n, n}
+                                  : partition::even_rows(n, world_size() - 1, world_rank() - 1);
+        const Slice s = slice_of(whole, rows);
+        const auto ranges = partition::gather_ranges(MPI_COMM_WORLD, rows);
+        const auto cheap = partition::contiguous_quality(MPI_COMM_WORLD, s.view(n), ranges);
+        const auto adjacency = partition::symmetrised_adjacency(MPI_COMM_WORLD, s.view(n), ranges);
+        const auto full =
+            partition::measure_quality(MPI_COMM_WORLD, s.view(n), adjacency, ranges,
+                                       partition::parts_in_place(MPI_COMM_WORLD, rows));
+        const auto cut = partition::contiguous_edge_cut(MPI_COMM_WORLD, s.view(n), ranges);
+        EXPECT_EQ(cut, full.edge_cut);
+        EXPECT_EQ(partition::edge_cut_in_place(MPI_COMM_WORLD, adjacency), full.edge_cut);
+        EXPECT_EQ(cheap.volume, full.volume);
+        EXPECT_EQ(cheap.max_volume, full.max_volume);
+        EXPECT_EQ(cheap.off_rank_nonzeros, full.off_rank_nonzeros);
+        EXPECT_EQ(cheap.max_nonzeros, full.max_nonzeros);
+        EXPECT_DOUBLE_EQ(cheap.imbalance, full.imbalance);
+        // An undirected walk has every transition both ways (common practice).
+        EXPECT_EQ(cheap.off_rank_nonzeros, 2 * cut);
+    }
 }
 
 } // namespace
