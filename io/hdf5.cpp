@@ -1,9 +1,15 @@
 #include "hdf5.hpp"
 
+#include "mpi_agree.hpp"
+
 #include <algorithm>
+#include <cerrno>
 #include <cstdio>
 #include <cstring>
+#include <filesystem>
 #include <memory>
+#include <sys/statvfs.h>
+#include <unistd.h>
 
 namespace longrun::h5 {
 
@@ -19,6 +25,120 @@ void fail(Side side, const std::string& file, const std::string& what) {
 }
 
 namespace {
+
+// errno right after the flush of the last file closed here; read by close_written.
+int last_close_errno = 0;
+
+// Why a write failed, in the system's words (ENOSPC, EDQUOT, EFBIG...): users must
+// be able to tell a full disk from a bug. MPI-IO reports a failed write by an error
+// code of its own and may leave errno cleared; a folder without a free block left
+// is then a full disk.
+std::string write_failure_reason(int error_number, const std::string& file) {
+    if (error_number == 0) {
+        const auto folder = std::filesystem::path(file).parent_path();
+        struct statvfs space {};
+        if (::statvfs(folder.empty() ? "." : folder.c_str(), &space) == 0 && space.f_bavail == 0)
+            error_number = ENOSPC;
+    }
+    if (error_number == 0)
+        return "the disk or quota may be full";
+    return std::strerror(error_number);
+}
+
+// The communicator of a file opened through MPI-IO (HDF5 hands out a duplicate,
+// freed on scope exit); empty for a serial file.
+class FileComm {
+  public:
+    explicit FileComm(hid_t object) {
+        Handle file(H5Iget_file_id(object), H5Fclose);
+        if (!file.valid())
+            return;
+        Handle fapl(H5Fget_access_plist(file), H5Pclose);
+        if (!fapl.valid() || H5Pget_driver(fapl) != H5FD_MPIO)
+            return;
+        MPI_Info info = MPI_INFO_NULL;
+        if (H5Pget_fapl_mpio(fapl, &comm_, &info) < 0)
+            comm_ = MPI_COMM_NULL;
+        if (info != MPI_INFO_NULL)
+            MPI_Info_free(&info);
+    }
+    FileComm(const FileComm&) = delete;
+    FileComm& operator=(const FileComm&) = delete;
+    ~FileComm() {
+        if (comm_ != MPI_COMM_NULL)
+            MPI_Comm_free(&comm_);
+    }
+    std::optional<MPI_Comm> get() const {
+        return comm_ == MPI_COMM_NULL ? std::nullopt : std::optional<MPI_Comm>(comm_);
+    }
+
+  private:
+    MPI_Comm comm_ = MPI_COMM_NULL;
+};
+
+// Writing to a file opened through MPI-IO is collective, but its failure need not
+// be: one rank's share of the data may not fit, or one rank may flush metadata
+// that the others do not. Every rank learns the outcome before any rank throws,
+// so that none is left waiting in the next collective call; then all throw the
+// same OutputError and unwind (closing their handles) together.
+void settle_write(std::optional<MPI_Comm> comm, bool ok, int error_number, const std::string& file,
+                  const std::string& what) {
+    std::optional<LocalFault> fault;
+    if (!ok)
+        fault = LocalFault{0, ExitCode::output_failed,
+                           file + ": " + what + ": " + write_failure_reason(error_number, file)};
+    if (comm)
+        agree_or_throw(*comm, fault);
+    else if (fault)
+        throw OutputError(fault->message);
+}
+
+// A failed write dooms the file: every writer here writes a temporary that is
+// removed on failure. Its blocks are given back before anyone closes it, because
+// closing still flushes HDF5's metadata into it; on a full disk that flush fails
+// too, and HDF5 (1.10) then keeps a half-closed file that crashes it at exit.
+// Collective with `comm`: rank 0 truncates, the others wait for it.
+void give_back_space(hid_t object, std::optional<MPI_Comm> comm) {
+    if (!comm || comm_rank(*comm) == 0) {
+        const ssize_t length = H5Fget_name(object, nullptr, 0);
+        if (length > 0) {
+            std::string name(static_cast<std::size_t>(length) + 1, '\0');
+            if (H5Fget_name(object, name.data(), name.size()) > 0)
+                (void)::truncate(name.c_str(), 0);
+        }
+    }
+    if (comm)
+        MPI_Barrier(*comm);
+}
+
+// The closer of every file created for writing. HDF5 flushes metadata on close,
+// and a close whose flush fails leaves HDF5 (1.10) a half-closed file that crashes
+// it at exit. So the flush comes first, its outcome agreed among the ranks (closing
+// is collective: they are all here), and a failed one gives the doomed file's
+// blocks back before the close flushes again.
+herr_t close_written_file(hid_t file) {
+    const FileComm comm(file);
+    errno = 0;
+    int flushed = H5Fflush(file, H5F_SCOPE_GLOBAL) >= 0;
+    last_close_errno = errno;
+    if (comm.get())
+        MPI_Allreduce(MPI_IN_PLACE, &flushed, 1, MPI_INT, MPI_LAND, *comm.get());
+    if (!flushed)
+        give_back_space(file, comm.get());
+    const herr_t closed = H5Fclose(file);
+    return flushed ? closed : herr_t(-1);
+}
+
+void settle_write(hid_t object, bool ok, int error_number, const std::string& file,
+                  const std::string& what) {
+    const FileComm comm(object);
+    try {
+        settle_write(comm.get(), ok, error_number, file, what);
+    } catch (const Error&) { // agreed: every rank of the file is here
+        give_back_space(object, comm.get());
+        throw;
+    }
+}
 
 Handle file_access(std::optional<MPI_Comm> comm, const std::string& file, Side side) {
     Handle fapl(H5Pcreate(H5P_FILE_ACCESS), H5Pclose);
@@ -50,10 +170,18 @@ Handle open_for_reading(const std::string& path, std::optional<MPI_Comm> comm) {
 Handle create_for_writing(const std::string& path, std::optional<MPI_Comm> comm) {
     silence_library_errors();
     Handle fapl = file_access(comm, path, Side::writing);
-    Handle f(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, fapl), H5Fclose);
-    if (!f.valid())
-        fail(Side::writing, path, "cannot create the file (folder missing or not writable?)");
+    errno = 0;
+    Handle f(H5Fcreate(path.c_str(), H5F_ACC_TRUNC, H5P_DEFAULT, fapl), close_written_file);
+    const int error_number = errno;
+    settle_write(comm, f.valid(), error_number, path,
+                 "cannot create the file (folder missing or not writable?)");
     return f;
+}
+
+void close_written(Handle& file, const std::string& path) {
+    if (file.close() < 0)
+        fail(Side::writing, path,
+             "cannot finish writing the file: " + write_failure_reason(last_close_errno, path));
 }
 
 bool exists(hid_t loc, const std::string& path) {
@@ -88,9 +216,10 @@ Handle open_dataset(hid_t loc, const std::string& path, const std::string& file)
 }
 
 Handle create_group(hid_t loc, const std::string& path, const std::string& file) {
+    errno = 0;
     Handle g(H5Gcreate2(loc, path.c_str(), H5P_DEFAULT, H5P_DEFAULT, H5P_DEFAULT), H5Gclose);
-    if (!g.valid())
-        fail(Side::writing, file, "cannot create group '" + path + "'");
+    const int error_number = errno;
+    settle_write(loc, g.valid(), error_number, file, "cannot create group '" + path + "'");
     return g;
 }
 
@@ -274,9 +403,11 @@ void write_raw_attribute(hid_t loc, const std::string& name, hid_t type, const v
     if (has_attribute(loc, name))
         H5Adelete(loc, name.c_str());
     Handle space(H5Screate(H5S_SCALAR), H5Sclose);
+    errno = 0;
     Handle a(H5Acreate2(loc, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT), H5Aclose);
-    if (!a.valid() || H5Awrite(a, type, value) < 0)
-        fail(Side::writing, file, "cannot write attribute '" + name + "'");
+    const bool ok = a.valid() && H5Awrite(a, type, value) >= 0;
+    const int error_number = errno;
+    settle_write(loc, ok, error_number, file, "cannot write attribute '" + name + "'");
 }
 
 } // namespace
@@ -315,9 +446,11 @@ void write_attribute(hid_t loc, const std::string& name, const std::vector<std::
     std::vector<const char*> raw;
     for (const auto& v : values)
         raw.push_back(v.c_str());
+    errno = 0;
     Handle a(H5Acreate2(loc, name.c_str(), type, space, H5P_DEFAULT, H5P_DEFAULT), H5Aclose);
-    if (!a.valid() || H5Awrite(a, type, raw.data()) < 0)
-        fail(Side::writing, file, "cannot write attribute '" + name + "'");
+    const bool ok = a.valid() && H5Awrite(a, type, raw.data()) >= 0;
+    const int error_number = errno;
+    settle_write(loc, ok, error_number, file, "cannot write attribute '" + name + "'");
 }
 
 namespace {
@@ -379,10 +512,11 @@ Handle create_dataset(hid_t loc, const std::string& name, hid_t filetype, std::u
         if (layout.deflate > 0)
             H5Pset_deflate(dcpl, static_cast<unsigned>(layout.deflate));
     }
+    errno = 0;
     Handle d(H5Dcreate2(loc, name.c_str(), filetype, space, H5P_DEFAULT, dcpl, H5P_DEFAULT),
              H5Dclose);
-    if (!d.valid())
-        fail(Side::writing, file, "cannot create dataset '" + name + "'");
+    const int error_number = errno;
+    settle_write(loc, d.valid(), error_number, file, "cannot create dataset '" + name + "'");
     return d;
 }
 
@@ -393,8 +527,14 @@ void write_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64
         return;
     auto [filespace, memspace] = select_range(dataset, offset, count);
     Handle dxpl = transfer_list(access);
-    if (H5Dwrite(dataset, memtype, memspace, filespace, dxpl, data) < 0)
-        fail(Side::writing, file, "cannot write dataset '" + name + "' (disk full?)");
+    errno = 0;
+    const bool ok = H5Dwrite(dataset, memtype, memspace, filespace, dxpl, data) >= 0;
+    const int error_number = errno;
+    const std::string what = "cannot write dataset '" + name + "'";
+    if (access == Access::collective)
+        settle_write(dataset, ok, error_number, file, what);
+    else
+        settle_write(std::nullopt, ok, error_number, file, what);
 }
 
 } // namespace longrun::h5

@@ -65,7 +65,12 @@ enum class Access { serial, collective };
 // Opens for reading. With `comm` the file is opened collectively through MPI-IO.
 Handle open_for_reading(const std::string& path, std::optional<MPI_Comm> comm);
 // Creates (truncating) for writing. With `comm`, collectively through MPI-IO.
+// Every writer here writes a temporary (io/atomic_output.hpp): on a failed write
+// the file's contents are given up so that it can still be closed.
 Handle create_for_writing(const std::string& path, std::optional<MPI_Comm> comm);
+// Closes a file from create_for_writing (collective like its creation); throws
+// OutputError naming `path` and the system's reason when the last writes fail.
+void close_written(Handle& file, const std::string& path);
 
 bool exists(hid_t loc, const std::string& path);
 Handle open_group(hid_t loc, const std::string& path, const std::string& file);

@@ -31,8 +31,7 @@ void write_checkpoint(const std::string& path, MPI_Comm comm, const CheckpointIn
             h5::write_range(d, H5T_NATIVE_DOUBLE, rows.begin, rows.size(), local.data(),
                             h5::Access::collective, path, "/distribution");
         }
-        if (f.close() < 0)
-            h5::fail(h5::Side::writing, path, "cannot finish writing the file (disk full?)");
+        h5::close_written(f, path);
     } catch (const Error& e) {
         fault = LocalFault{0, e.code(), e.what()};
     }

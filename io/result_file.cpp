@@ -105,8 +105,7 @@ void write_result_file(const std::string& path, MPI_Comm comm, const ResultConte
                     h5::write_attribute(g, "mass_at_upper_bound", *v.mass_at_upper, file);
             }
         }
-        if (f.close() < 0)
-            h5::fail(h5::Side::writing, path, "cannot finish writing the file (disk full?)");
+        h5::close_written(f, path);
     } catch (const Error& e) {
         fault = LocalFault{0, e.code(), e.what()};
     }

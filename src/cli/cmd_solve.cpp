@@ -140,7 +140,8 @@ Action add_solve(CLI::App& app) {
     sub->add_option("--resume", o->resume,
                     "continue from this checkpoint if it exists (else start from the beginning, "
                     "and say so); keeps checkpointing into it unless --checkpoint names another "
-                    "file. The same command line can thus be resubmitted after a time limit");
+                    "file. The same command line can thus be resubmitted after a time limit; the "
+                    "tolerance and method may differ from the first run");
     sub->add_option("--truncation-warn", o->request.truncation_threshold,
                     "warn when the probability at a state variable's declared bound exceeds "
                     "this (a sign that the bound cuts off real mass)")

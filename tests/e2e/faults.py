@@ -5,17 +5,20 @@ full disk.
   faults.py setup DIR FAMILY      a tandem line big enough to run for seconds under
                                   power iteration, its SciPy solution and an
                                   uninterrupted longrun solution (the references)
-  faults.py sigkill DIR           2-rank power solve with --checkpoint-every 0.2;
-                                  once the checkpoint exists, SIGKILL every process
-                                  of the job; --resume reaches the references
+  faults.py sigkill DIR           2-rank power solve that cannot finish, with
+                                  --checkpoint-every 0.2; once the checkpoint exists,
+                                  SIGKILL every process of the job; --resume (with the
+                                  real tolerance) reaches the references
   faults.py sigterm DIR           the same with SIGTERM to each rank (as a batch
                                   scheduler signals every task): exit 7, one line
                                   naming the checkpoint, --resume reaches the
                                   references; without --checkpoint: exit 7, nothing
   faults.py diskfull DIR          the result write hits a full filesystem (a 32 KiB
-                                  tmpfs; where mounting is not allowed, a file-size
-                                  limit instead): exit 6, one line, no file under
-                                  the final name, no temporary left, input untouched
+                                  tmpfs, 1 and 2 ranks; where mounting is not allowed,
+                                  a file-size limit on 1 rank instead): exit 6, one
+                                  line naming the file and the system's reason, no
+                                  file under the final name, no temporary left,
+                                  input untouched
 
 The references are outside longrun (SciPy's sparse LU, scipy_reference.py) and a
 longrun run that was never interrupted. No sleeps synchronise anything: the test
@@ -23,6 +26,7 @@ polls for the checkpoint file, which longrun writes under a temporary name and
 renames, so that its appearance means it is complete.
 """
 
+import errno
 import hashlib
 import os
 import resource
@@ -42,6 +46,17 @@ from e2e_common import check
 TANDEM = ["tandem", "--n1", "80", "--n2", "80", "--arrival", "1", "--service1", "1.25",
           "--service2", "1.2"]
 TOL = "1e-13"
+# The run that gets interrupted must not be able to finish first, however fast the
+# machine: it asks for a residual of 1e-30, far below the rounding floor of double
+# precision (about 1e-17 on this chain), and switches off both ways in which power
+# iteration gives up early, the iteration limit and the stall watch (whose window is
+# made as long as the limit). 10^9 products take hours, so only the signal ends it;
+# mpirun's --timeout is a safety net should this script itself be killed. --resume
+# then asks for TOL with the default settings: a checkpoint holds the iterate, not
+# the tolerance, and a resumed run may change both (only the chain must match).
+UNREACHABLE_TOL = "1e-30"
+ENDLESS = ["--", "-power_max_it", "1000000000", "-power_window", "1000000000"]
+SAFETY_TIMEOUT = "110"
 # Two certified answers to residual 1e-13 agree to about the condition of this
 # slowly mixing chain (a few hundred, measured: 3.6e-10 apart at residual 1e-12)
 # times that; 1e-10 in the 1-norm is the agreement asked for. (common practice)
@@ -74,21 +89,40 @@ def rank_processes(mpirun_pid):
         return [int(p) for p in f.read().split()]
 
 
-def cpu_ticks(pid):
-    """User + system CPU of a process, in clock ticks (0 once it has ended)."""
-    try:
-        with open(f"/proc/{pid}/stat") as f:
-            fields = f.read().rsplit(")", 1)[1].split()
-        return int(fields[11]) + int(fields[12])
-    except (OSError, ValueError):
-        return 0
-
-
-def start(args, ranks=2):
-    command = mpirun(ranks) + [e2e.longrun_binary(), *args]
+def start(args, ranks=2, unbuffered=False):
+    """Starts a job in a session of its own (so that every process of it can be
+    found); `unbuffered`: stderr as raw bytes, read line by line with nothing
+    held back from communicate()."""
+    command = mpirun(ranks) + ["--timeout", SAFETY_TIMEOUT, e2e.longrun_binary(), *args]
     print("$ " + " ".join(command), flush=True)
+    if unbuffered:
+        return subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+                                bufsize=0, start_new_session=True)
     return subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
                             start_new_session=True)
+
+
+def kill_job(job):
+    """SIGKILL to every process of the job's session; returns how many got it."""
+    victims = job_processes(job.pid)
+    for pid in victims:
+        try:
+            os.kill(pid, signal.SIGKILL)
+        except ProcessLookupError:
+            pass
+    return len(victims)
+
+
+def finished(job, timeout=50):
+    """(stdout, stderr) of a job that was told to end; one that does not end in
+    `timeout` seconds is killed (an endless run must never outlive the test)."""
+    try:
+        return job.communicate(timeout=timeout)
+    except subprocess.TimeoutExpired:
+        kill_job(job)
+        out, err = job.communicate()
+        check(False, f"the job did not end within {timeout} s of its signal (killed)")
+        return out, err
 
 
 def wait_for_file(path, process, limit=50.0):
@@ -116,9 +150,14 @@ def compare_with_references(folder, result):
     check(d_scipy <= AGREE, f"{result}: differs from SciPy's solution by {d_scipy:.3e}")
 
 
-def solve_args(folder, name, extra=()):
+def solve_args(folder, name, extra=(), tol=TOL):
     return ["solve", os.path.join(folder, "chain.h5"), "-o", os.path.join(folder, name),
-            "--method", "power", "--tol", TOL, *extra]
+            "--method", "power", "--tol", tol, *extra]
+
+
+def endless_args(folder, name, extra=()):
+    """A power solve that only a signal ends (see UNREACHABLE_TOL)."""
+    return solve_args(folder, name, [*extra, *ENDLESS], tol=UNREACHABLE_TOL)
 
 
 def setup(folder, family):
@@ -142,6 +181,8 @@ def resume_and_compare(folder, checkpoint, name):
     done = e2e.run(solve_args(folder, name, ["--checkpoint", checkpoint, "--resume", checkpoint,
                                              "-q"]), ranks=2)
     if check(done.returncode == 0, f"resume failed ({done.returncode}): {done.stderr}"):
+        check(f"resumed from {checkpoint}" in done.stdout,
+              f"the report does not say it resumed from {checkpoint}: {done.stdout}")
         compare_with_references(folder, os.path.join(folder, name))
 
 
@@ -150,34 +191,39 @@ def sigkill(folder):
     for stale in (checkpoint, os.path.join(folder, "killed.h5")):
         if os.path.exists(stale):
             os.remove(stale)
-    job = start(solve_args(folder, "killed.h5", ["--checkpoint", checkpoint,
-                                                 "--checkpoint-every", "0.2", "-q"]))
-    if not check(wait_for_file(checkpoint, job), "no checkpoint appeared before the job ended"):
+    job = start(endless_args(folder, "killed.h5", ["--checkpoint", checkpoint,
+                                                   "--checkpoint-every", "0.2", "-q"]))
+    try:
+        appeared = wait_for_file(checkpoint, job)
+    finally:
+        victims = kill_job(job)
         job.communicate()
+    if not check(appeared, f"no checkpoint appeared; the job ended with {job.returncode}"):
         return
-    victims = job_processes(job.pid)
-    for pid in victims:
-        try:
-            os.kill(pid, signal.SIGKILL)
-        except ProcessLookupError:
-            pass
-    job.communicate()
-    print(f"  killed {len(victims)} processes with SIGKILL; exit {job.returncode}")
+    print(f"  killed {victims} processes with SIGKILL; exit {job.returncode}")
     check(job.returncode == -signal.SIGKILL, f"mpirun ended with {job.returncode}, not SIGKILL")
     check(not os.path.exists(os.path.join(folder, "killed.h5")), "a result appeared anyway")
     resume_and_compare(folder, checkpoint, "killed_resumed.h5")
 
 
 def stop_with_sigterm(folder, name, extra, wait_for):
-    """Starts a 2-rank solve, waits for `wait_for` (a file) and sends SIGTERM to
-    each rank; returns (exit code, stderr)."""
-    job = start(solve_args(folder, name, extra))
-    if not check(wait_for_file(wait_for, job), f"{wait_for} did not appear before the job ended"):
-        job.communicate()
+    """Starts a 2-rank solve that cannot finish, waits for `wait_for` (a file)
+    and sends SIGTERM to each rank; returns (exit code, stderr)."""
+    job = start(endless_args(folder, name, extra))
+    try:
+        appeared = wait_for_file(wait_for, job)
+        if appeared:
+            for pid in rank_processes(job.pid):
+                os.kill(pid, signal.SIGTERM)
+    except BaseException:
+        kill_job(job)
+        raise
+    if not appeared:
+        kill_job(job)
+        _, err = job.communicate()
+        check(False, f"{wait_for} did not appear; the job ended with {job.returncode}: {err}")
         return None, ""
-    for pid in rank_processes(job.pid):
-        os.kill(pid, signal.SIGTERM)
-    _, err = job.communicate(timeout=50)
+    _, err = finished(job)
     print(f"  exit {job.returncode}\n  stderr: {err.strip()}")
     return job.returncode, err
 
@@ -204,30 +250,34 @@ def sigterm(folder):
 
     # Without --checkpoint: nothing may be written. Stopped while iterating, the
     # line says no checkpoint was written; stopped earlier (still reading), that
-    # nothing was; both end with exit 7.
+    # nothing was; both end with exit 7. The signal goes once rank 0 has said how
+    # power iteration will run (its last note before the first product): from
+    # then on the run is iterating and cannot end by itself.
     before = set(os.listdir(folder))
-    job = start(solve_args(folder, "plain.h5", []))
-    # The last note before the matrix is assembled names the partition; from
-    # then on, 0.3 s more CPU on both ranks means they are iterating (the whole
-    # solve takes seconds).
-    for line in job.stderr:
-        if "partition" in line:
-            break
-    ranks = rank_processes(job.pid) if job.poll() is None else []
-    start_ticks = [cpu_ticks(p) for p in ranks]
-    deadline = time.monotonic() + 50
-    while time.monotonic() < deadline and job.poll() is None:
-        ticks = [cpu_ticks(p) for p in ranks]
-        if all(t - t0 >= 0.3 * os.sysconf("SC_CLK_TCK") for t, t0 in zip(ticks, start_ticks)):
-            break
-        time.sleep(0.02)  # polling interval, not synchronisation
-    for pid in ranks:
-        try:
-            os.kill(pid, signal.SIGTERM)
-        except ProcessLookupError:
-            pass
-    _, err = job.communicate(timeout=50)
+    job = start(endless_args(folder, "plain.h5"), unbuffered=True)
+    seen = []
+    try:
+        while True:
+            line = job.stderr.readline()
+            if not line:
+                break
+            seen.append(line)
+            if line.lstrip().startswith(b"power:"):
+                break
+        started = bool(seen) and seen[-1].lstrip().startswith(b"power:")
+        ranks = rank_processes(job.pid) if job.poll() is None else []
+        for pid in ranks:
+            try:
+                os.kill(pid, signal.SIGTERM)
+            except ProcessLookupError:
+                pass
+    except BaseException:
+        kill_job(job)
+        raise
+    _, rest = finished(job)
+    err = b"".join(seen).decode() + rest.decode()
     print(f"  exit {job.returncode}\n  stderr: {err.strip()}")
+    check(started, "the run ended before power iteration began")
     check(job.returncode == 7, f"SIGTERM'd solve without --checkpoint exited {job.returncode}")
     lines = [l for l in err.splitlines() if l.startswith("longrun:")]
     check(len(lines) == 1 and "stopped by SIGTERM" in lines[0] and
@@ -239,6 +289,49 @@ def sigterm(folder):
 def checksum(path):
     with open(path, "rb") as f:
         return hashlib.sha256(f.read()).hexdigest()
+
+
+def write_onto_full_disk(folder, full, ranks, preexec=None):
+    """One solve whose result goes into the full folder `full`; returns the
+    CompletedProcess. One rank is a plain start, as most users run it."""
+    target = os.path.join(full, "result.h5")
+    args = ["solve", os.path.join(folder, "chain.h5"), "-o", target, "--method", "linear",
+            "--tol", TOL, "-q"]
+    if ranks == 1:
+        command = [e2e.longrun_binary(), *args]
+        print("$ " + " ".join(command), flush=True)
+        job = subprocess.Popen(command, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True,
+                               start_new_session=True, preexec_fn=preexec)
+    else:
+        job = start(args, ranks)
+    try:
+        out, err = job.communicate(timeout=60)
+    except subprocess.TimeoutExpired:
+        # A rank that failed alone must not leave the others waiting in a
+        # collective call: a hang is a failure, and the job must go before the
+        # mount can.
+        kill_job(job)
+        out, err = job.communicate()
+        check(False, f"{ranks} rank(s): the job hung after the failed write (killed after 60 s)")
+    print(f"  exit {job.returncode}\n  stderr: {err.strip()}")
+    return subprocess.CompletedProcess(args, job.returncode, out, err)
+
+
+def check_clean_failure(done, full, ranks, reason):
+    target = os.path.join(full, "result.h5")
+    label = f"{ranks} rank(s)"
+    check(done.returncode == 6, f"{label}: exit {done.returncode}, not 6 (output failed)")
+    # mpirun adds its own banner about the non-zero exit; longrun's lines are ours.
+    lines = [l for l in done.stderr.splitlines() if l.startswith("longrun:")]
+    check(len(lines) == 1, f"{label}: expected one longrun line on stderr, got {lines}")
+    line = lines[0] if lines else ""
+    check(target in line, f"{label}: the line does not name {target}: {line}")
+    check(reason in line, f"{label}: the line does not say '{reason}': {line}")
+    check(not os.path.exists(target), f"{label}: a result file exists under the final name")
+    left = os.listdir(full)
+    check(left == [], f"{label}: left behind in the full folder: {left}")
+    for leftover in left:
+        os.remove(os.path.join(full, leftover))
 
 
 def diskfull(folder):
@@ -254,26 +347,15 @@ def diskfull(folder):
     # more than 32 KiB; the checkpoint-free solve writes nothing else there.
     mounted = subprocess.run(["mount", "-t", "tmpfs", "-o", "size=32k", "tmpfs", full],
                              capture_output=True, text=True).returncode == 0
-    target = os.path.join(full, "result.h5")
-    args = ["solve", chain, "-o", target, "--method", "linear", "--tol", TOL, "-q"]
     try:
         if mounted:
+            # Both a plain start and 2 ranks: on 1 rank the failure must unwind
+            # without leaving HDF5 a file to close at exit, on 2 ranks the rank
+            # whose write failed must not leave the other waiting.
             print("  full disk: a 32 KiB tmpfs")
-            job = start(args)
-            try:
-                out, err = job.communicate(timeout=60)
-            except subprocess.TimeoutExpired:
-                # A rank that failed alone must not leave the others waiting in a
-                # collective call: a hang is a failure, and the job must go before
-                # the mount can.
-                for pid in job_processes(job.pid):
-                    try:
-                        os.kill(pid, signal.SIGKILL)
-                    except ProcessLookupError:
-                        pass
-                out, err = job.communicate()
-                check(False, "the job hung after the failed write (killed after 60 s)")
-            done = subprocess.CompletedProcess(args, job.returncode, out, err)
+            for ranks in (1, 2):
+                done = write_onto_full_disk(folder, full, ranks)
+                check_clean_failure(done, full, ranks, os.strerror(errno.ENOSPC))
         else:
             # No mount here (a container without the right): a file-size limit makes
             # write() fail with EFBIG once a file passes 32 KiB. SIGXFSZ is ignored
@@ -285,19 +367,8 @@ def diskfull(folder):
                 signal.signal(signal.SIGXFSZ, signal.SIG_IGN)
                 resource.setrlimit(resource.RLIMIT_FSIZE, (32768, 32768))
 
-            command = [e2e.longrun_binary(), *args]
-            print("$ " + " ".join(command), flush=True)
-            done = subprocess.run(command, capture_output=True, text=True, preexec_fn=limit,
-                                  timeout=120)
-        print(f"  exit {done.returncode}\n  stderr: {done.stderr.strip()}")
-        check(done.returncode == 6, f"exit {done.returncode}, not 6 (output failed)")
-        # mpirun adds its own banner about the non-zero exit; longrun's lines are ours.
-        lines = [l for l in done.stderr.splitlines() if l.startswith("longrun:")]
-        check(len(lines) == 1, f"expected one longrun line on stderr, got {len(lines)}: {lines}")
-        check(bool(lines) and target in lines[0], f"the line does not name {target}: {lines}")
-        left = os.listdir(full)
-        check(not os.path.exists(target), "a result file exists under the final name")
-        check(left == [], f"left behind in the full folder: {left}")
+            done = write_onto_full_disk(folder, full, 1, preexec=limit)
+            check_clean_failure(done, full, 1, os.strerror(errno.EFBIG))
     finally:
         if mounted:
             subprocess.run(["umount", full], check=False)

@@ -1,12 +1,15 @@
 #!/bin/bash
-# Stands in for longrun in the job tests until solve stops on a signal by itself.
-# Every command other than solve goes to the real program ($LONGRUN_REAL). solve:
+# Stands in for longrun in the job tests' resubmission case only (the stop case runs
+# the real longrun and stops it with a real signal). A resubmitted job repeats the
+# first job's command line word for word, so a real first run could be made to
+# stop mid-solve only by a command line that never finishes, in the resubmitted
+# job too; this stand-in lets the same command line be interrupted once and then
+# finish. Every command other than solve goes to the real program ($LONGRUN_REAL).
+# solve:
 #   FAKE_MODE=once    the first time (no $FAKE_MARK yet): run the real solve towards an
 #                     unreachable tolerance, which leaves the best iterate in the
 #                     checkpoint, then exit 7 as an interrupted solve does; afterwards
 #                     the real solve.
-#   FAKE_MODE=signal  announce the start in $FAKE_MARK, wait for SIGTERM, then leave a
-#                     checkpoint file and exit 7.
 set -euo pipefail
 real=${LONGRUN_REAL:?}
 args=("$@")
@@ -33,16 +36,6 @@ case ${FAKE_MODE:-} in
     [[ -f $checkpoint ]] || exit 71
     ((rank == 0)) && touch "$FAKE_MARK"
     exit 7
-    ;;
-  signal)
-    trap 'kill "$sleeper" 2>/dev/null || true
-      if ((rank == 0)); then printf x >"$checkpoint"; echo got-term >>"$FAKE_MARK"; fi
-      exit 7' TERM
-    ((rank == 0)) && echo started >"$FAKE_MARK"
-    sleep 60 &
-    sleeper=$!
-    wait "$sleeper"
-    exit 72
     ;;
   *) exec "$real" "$@" ;;
 esac

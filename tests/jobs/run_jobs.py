@@ -13,7 +13,8 @@ Usage: run_jobs.py slurm|pbs pipeline|resubmit|stop|sweep|options OUT_DIR
             resubmission limit nothing more is submitted
   stop      the stop request (Slurm: SIGTERM to the batch shell as --signal=B:TERM
             sends it; PBS: the job's own timer before the wall time) reaches the ranks
-            through mpirun, and the job resubmits itself
+            of a real solve that cannot finish by itself, through mpirun: longrun
+            stops (exit 7), and the job resubmits itself
   sweep     a job array of 4 tasks, the gather job submitted by the first, then run
   options   every jobs/options/*.opts through the solve job with its own method
 
@@ -40,25 +41,11 @@ ARRIVAL = 0.7
 AGREE = 1e-8
 TASKS = 2
 
-MODEL = """kind: ctmc
-parameters: {arrival: 0.7, service: 1.0}
-variables:
-  queue: {from: 0, to: 10}
-start: {queue: 0}
-events:
-  - name: arrive
-    when: "queue < 10"
-    rate: arrival
-    then: {queue: "queue + 1"}
-  - name: leave
-    when: "queue > 0"
-    rate: service
-    then: {queue: "queue - 1"}
-"""
-
 SOURCE = os.environ["LONGRUN_SOURCE_DIR"]
 JOBS = os.path.join(SOURCE, "jobs")
 HERE = os.path.dirname(os.path.abspath(__file__))
+# The M/M/1/K model shared with the sweep tests; its default arrival rate is ARRIVAL.
+MODEL_FILE = os.path.join(HERE, os.pardir, "support", "models", "mm1k.yaml")
 BINARY = os.environ["LONGRUN_BINARY"]
 
 failures = []
@@ -101,8 +88,7 @@ class Site:
         self.nodefile = os.path.join(out, "nodefile")
         with open(self.nodefile, "w") as f:
             f.write("localhost\n" * TASKS)
-        with open(os.path.join(self.submit, "mm1k.yaml"), "w") as f:
-            f.write(MODEL)
+        shutil.copyfile(MODEL_FILE, os.path.join(self.submit, "mm1k.yaml"))
         self.next_id = 100
 
     def script(self, job):
@@ -337,31 +323,45 @@ def resubmit(site):
     check(site.leftovers() == [], f"temporary files left: {site.leftovers()}")
 
 
+# A solve that only a signal ends, however fast the machine: a residual of 1e-30
+# lies below double precision's rounding floor, and power iteration's iteration
+# limit and stall watch (whose window is made as long as the limit) are out of reach.
+ENDLESS_SOLVE = ["--method", "power", "--tol", "1e-30", "--", "-power_max_it", "1000000000",
+                 "-power_window", "1000000000"]
+
+
 def stop(site):
     chain = "mm1k.h5"
     done = site.job("generate", model="mm1k.yaml", chain=chain)
     check(done.returncode == 0, f"generate exit {done.returncode}")
-    env = interrupting_env(site, "signal")
+    env = {"LONGRUN_CHECKPOINT_EVERY": "0.2"}
     if site.flavour == "pbs":
         # The job's timer asks for the stop LONGRUN_STOP_BEFORE seconds before the wall
         # time, read from `qstat -f`: 308 s - 300 s = 8 s after the start.
         env.update(LONGRUN_STOP_BEFORE="300", FAKE_PBS_WALLTIME="00:05:08")
-    args, inputs = site.inputs("solve", chain=chain, result="r.h5")
+    args, inputs = site.inputs("solve", chain=chain, result="r.h5", extra=ENDLESS_SOLVE)
+    checkpoint = os.path.join(site.submit, "r.checkpoint.h5")
     first_id = str(site.next_id + 1)
     process = site.run("solve", args, inputs, env, start_only=True)
-    mark = env["FAKE_MARK"]
-    deadline = time.monotonic() + 120
-    while not os.path.exists(mark) and time.monotonic() < deadline:
-        time.sleep(0.2)
-    check(os.path.exists(mark), "the ranks never started")
-    if site.flavour == "slurm":
-        time.sleep(1)
-        process.send_signal(signal.SIGTERM)  # what --signal=B:TERM@T does
-    output, _ = process.communicate(timeout=300)
+    try:
+        if site.flavour == "slurm":
+            # Once the first checkpoint is there (written under a temporary name and
+            # renamed), the solve is iterating: the stop request lands mid-solve.
+            deadline = time.monotonic() + 120
+            while (not os.path.exists(checkpoint) and process.poll() is None
+                   and time.monotonic() < deadline):
+                time.sleep(0.05)  # polling interval, not synchronisation
+            check(os.path.exists(checkpoint), "no checkpoint before the stop request")
+            process.send_signal(signal.SIGTERM)  # what --signal=B:TERM@T does
+        output, _ = process.communicate(timeout=300)
+    except BaseException:
+        process.send_signal(signal.SIGTERM)  # the job passes it on: the solve stops
+        process.communicate(timeout=60)
+        raise
     print(f"--- {site.flavour} solve (stopped) exit {process.returncode}\n{output}", flush=True)
-    with open(mark) as f:
-        check("got-term" in f.read(), "the stop request did not reach the ranks")
+    check("longrun: stopped by SIGTERM" in output, "the stop request did not reach the ranks")
     check(process.returncode == 7, f"stopped solve job: exit {process.returncode}, expected 7")
+    check(os.path.isfile(checkpoint), "no checkpoint after the stop")
     check(not os.path.exists(os.path.join(site.submit, "r.h5")), "a stopped solve delivered")
     records = site.submissions()
     check(len(records) == 1, f"{len(records)} submissions after the stop")
