@@ -60,12 +60,6 @@ records="$work/records.tsv"
 : > "$records"
 failures=0
 
-# Clock ticks all cores spent busy (user, nice, system, irq, softirq) since boot.
-busy_ticks() {
-    local _cpu user nice system _idle _iowait irq softirq _rest
-    read -r _cpu user nice system _idle _iowait irq softirq _rest < /proc/stat
-    echo "$((user + nice + system + irq + softirq))"
-}
 
 # run_timed ID CHAIN RANKS -- COMMAND...: stdout to WORK/ID.json, stderr to
 # WORK/ID.err; appends one record. Never fails: a failed run is recorded.

@@ -98,18 +98,7 @@ fi
 mkdir -p "$work"
 work="$(cd "$work" && pwd)"
 
-# Before OMP_NUM_THREADS is set: nproc honours it.
-cores="$(nproc)"
-memory_gib="$(free -g | awk '/^Mem:/ {print $2}')"
-cpu_model="$(grep -m1 '^model name' /proc/cpuinfo | cut -d: -f2- | sed 's/^ *//')"
-# What was measured: the binaries' source folder (from the build's CMake cache) and,
-# when that is a git checkout, its commit; the repository's own HEAD may have moved on.
-source_dir="$(sed -n 's/^CMAKE_HOME_DIRECTORY:INTERNAL=//p' "$build/CMakeCache.txt" 2> /dev/null || true)"
-source_commit="$(git -C "${source_dir:-/nonexistent}" describe --always --dirty 2> /dev/null ||
-    echo "not a git checkout")"
-built="$(date -u -r "$longrun" '+%Y-%m-%d %H:%M UTC')"
-version="$("$longrun" --version 2> /dev/null || echo "longrun (version unknown)")"
-started="$(date -u '+%Y-%m-%d %H:%M UTC')"
+describe_machine # before OMP_NUM_THREADS is set: nproc honours it
 
 export OMP_NUM_THREADS=1
 if [[ "$(id -u)" -eq 0 ]]; then # Open MPI refuses root without these
@@ -120,41 +109,6 @@ records="$work/records.tsv"
 : > "$records"
 failures=0
 
-# Clock ticks all cores spent busy (user, nice, system, irq, softirq) since boot.
-busy_ticks() {
-    local _cpu user nice system _idle _iowait irq softirq _rest
-    read -r _cpu user nice system _idle _iowait irq softirq _rest < /proc/stat
-    echo "$((user + nice + system + irq + softirq))"
-}
-
-# record ID CHAIN SOLVER RANKS STATUS START END BUSY OUTPUT: one line of the records.
-record() {
-    printf '%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\t%s\n' "$@" >> "$records"
-}
-
-# run_timed ID CHAIN SOLVER RANKS OUTPUT MUST -- COMMAND...
-# Runs COMMAND with stdout to WORK/ID.json and stderr to WORK/ID.err, timed, and
-# records it. Never fails: a failed run is recorded, and counted as a failure of the
-# suite when MUST is "must".
-run_timed() {
-    local id="$1" chain="$2" solver="$3" ranks="$4" output="$5" must="$6"
-    shift 7
-    local busy_before busy_after start end rc=0
-    busy_before="$(busy_ticks)"
-    echo "[$(date +%T)] $id: $*" >&2
-    start="$(date +%s.%N)"
-    /usr/bin/time -v -o "$work/$id.time" timeout "$limit" "$@" \
-        > "$work/$id.json" 2> "$work/$id.err" || rc=$?
-    end="$(date +%s.%N)"
-    busy_after="$(busy_ticks)"
-    if [[ "$rc" -ne 0 ]]; then
-        [[ "$must" == must ]] && failures=$((failures + 1))
-        echo "[$(date +%T)] $id ended with exit status $rc; last lines of its stderr:" >&2
-        tail -n 5 "$work/$id.err" >&2 || true
-    fi
-    record "$id" "$chain" "$solver" "$ranks" "$rc" "$start" "$end" \
-        "$((busy_after - busy_before))" "$output"
-}
 
 echo "work folder: $work" >&2
 for name in $families; do

@@ -10,7 +10,9 @@ and checks: exit 0; the whole of stdout parses as one JSON object (json.loads
 refuses a second object or stray text); it has chain, ranks, attempts,
 certificate and variables; certificate.certified is true with residual <= the
 tolerance; ranks and chain.states are right; -q leaves stderr empty; the
-variables are the chain's and their numbers are those written to the result file.
+variables are the chain's and their numbers are those written to the result file;
+phase_seconds names the phases in the order they ran, and those up to the write add
+up to wall_seconds (both come from one clock; the write comes after wall_seconds).
 """
 
 import json
@@ -22,7 +24,9 @@ import h5py
 from e2e_common import check, finish, read_chain, run, text
 
 TOL = 1e-12
-KEYS = ("chain", "ranks", "attempts", "certificate", "variables")
+KEYS = ("chain", "ranks", "attempts", "certificate", "variables", "phase_seconds", "wall_seconds")
+# The phases of a solve with a unique answer, in order (structure analysis on).
+PHASES = ["read", "structure", "partition", "assemble", "start", "solve", "summaries"]
 
 
 def parse(done, what):
@@ -56,6 +60,16 @@ def check_report(report, what, chain, ranks, variables):
           f"{what}: attempts {report['attempts']!r}")
     names = [v.get("name") for v in report["variables"]]
     check(names == variables["__order__"], f"{what}: variables {names}")
+    phases = report["phase_seconds"]
+    written = report.get("output") is not None
+    order = [p.get("phase") for p in phases]
+    check(order == PHASES + (["write"] if written else []), f"{what}: phases {order}")
+    check(all(isinstance(p.get("seconds"), float) and p["seconds"] >= 0 for p in phases),
+          f"{what}: phase seconds {phases}")
+    before_write = sum(p["seconds"] for p in phases if p.get("phase") != "write")
+    check(abs(before_write - report["wall_seconds"]) <= 1e-6 * max(1.0, report["wall_seconds"]),
+          f"{what}: phases before the write add up to {before_write}, "
+          f"wall_seconds {report['wall_seconds']}")
 
 
 def main(argv):
