@@ -17,7 +17,7 @@ struct SolveOptions {
     SolveRequest request;
     SolverOptions solver;
     std::string output;
-    std::string partition = "auto";
+    std::string partition = "contiguous";
     bool json = false;
     bool quiet = false;
     std::optional<std::uint64_t> start_state;
@@ -103,8 +103,8 @@ Action add_solve(CLI::App& app) {
                     "results stay in file order), auto (contiguous unless its busiest rank "
                     "receives at least 1% of its nonzeros in vector entries per product; then "
                     "graph when that at least halves the entries exchanged without adding "
-                    "imbalance)")
-        ->default_val("auto")
+                    "imbalance). contiguous measures the exchange and says when auto may help")
+        ->default_val("contiguous")
         ->check(CLI::IsMember({"auto", "contiguous", "graph"}));
     add_validation_options(sub, o->request.validation);
     sub->add_flag("--no-analysis{false}", o->request.analyse_structure,

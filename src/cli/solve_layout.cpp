@@ -58,7 +58,16 @@ SolveLayout::SolveLayout(MPI_Comm comm, const io::Chain& chain, const solve::Loc
     if (!tries_graph)
         outcome_.contiguous->edge_cut = partition::contiguous_edge_cut(comm, csr, ranges);
     if (requested == Layout::contiguous) {
-        outcome_.reason = "requested";
+        // The measuring is cheap; the partitioner is not, and on chains without
+        // locality (random graphs) it cannot help: only a hint, the user decides.
+        outcome_.reason =
+            partition::communication_visible(*outcome_.contiguous)
+                ? fmt::format("requested; the busiest rank receives {} vector entries per "
+                              "product against {} nonzeros: if the states are numbered without "
+                              "regard to their neighbours (hashed, shuffled), --partition auto "
+                              "may cut that",
+                              outcome_.contiguous->max_volume, outcome_.contiguous->max_nonzeros)
+                : "requested";
     } else if (!blocker.empty()) {
         outcome_.reason = "graph partition not used: " + blocker;
     } else if (!tries_graph) {

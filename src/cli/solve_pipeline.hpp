@@ -29,7 +29,9 @@ struct SolveRequest {
     bool progress = true;
     std::optional<RowRange> forced_rows; // tests: override the partition
     // Rows during the solve: contiguous blocks, a graph partition, or auto.
-    partition::Layout partition = partition::Layout::automatic;
+    // contiguous unless asked: PT-Scotch cannot help a chain without locality and
+    // costs more than the solve there (benchmarks/RESULTS.md, the 10^6 graph walk).
+    partition::Layout partition = partition::Layout::contiguous;
     bool analyse_structure = true; // off only for chains too large to gather
     // Several closed classes: solve each on its own instead of stopping (exit 3).
     bool per_class = false;
