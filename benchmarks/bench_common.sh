@@ -81,3 +81,28 @@ run_timed() {
     record "$id" "$chain" "$solver" "$ranks" "$rc" "$start" "$end" \
         "$((busy_after - busy_before))" "$output"
 }
+
+# start_run STEM: the run's work folder (WORK_DIR as given, else a fresh mktemp folder,
+# removed at the end unless LONGRUN_BENCH_KEEP=1 or a run failed), the machine facts,
+# the environment every run gets, and an empty records file. Sets work, records and
+# failures, and the facts of describe_machine.
+start_run() {
+    if [[ -z "$work" ]]; then
+        work="$(mktemp -d "${TMPDIR:-/tmp}/longrun-$1.XXXXXX")"
+        if [[ "${LONGRUN_BENCH_KEEP:-0}" != 1 ]]; then
+            # Kept when a run failed, for its logs.
+            trap 'if [[ "${failures:-0}" -eq 0 ]]; then rm -rf -- "$work"; fi' EXIT
+        fi
+    fi
+    mkdir -p "$work"
+    work="$(cd "$work" && pwd)"
+    describe_machine # before OMP_NUM_THREADS is set: nproc honours it
+    export OMP_NUM_THREADS=1
+    if [[ "$(id -u)" -eq 0 ]]; then # Open MPI refuses root without these
+        export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
+    fi
+    records="$work/records.tsv"
+    : > "$records"
+    failures=0
+    echo "work folder: $work" >&2
+}

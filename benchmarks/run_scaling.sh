@@ -62,26 +62,7 @@ for number in "$rounds" "$repeat" "$limit" "$memory_limit"; do
     [[ "$number" =~ ^[0-9]+$ ]] || die "'$number' is not a whole number (see LONGRUN_SCALING_*)"
 done
 
-if [[ -z "$work" ]]; then
-    work="$(mktemp -d "${TMPDIR:-/tmp}/longrun-scaling.XXXXXX")"
-    if [[ "${LONGRUN_BENCH_KEEP:-0}" != 1 ]]; then
-        trap 'if [[ "${failures:-0}" -eq 0 ]]; then rm -rf -- "$work"; fi' EXIT
-    fi
-fi
-mkdir -p "$work"
-work="$(cd "$work" && pwd)"
-
-describe_machine # before OMP_NUM_THREADS is set: nproc honours it
-export OMP_NUM_THREADS=1
-if [[ "$(id -u)" -eq 0 ]]; then # Open MPI refuses root without these
-    export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
-fi
-records="$work/records.tsv"
-: > "$records"
-failures=0
-
-
-echo "work folder: $work" >&2
+start_run scaling
 for name in $chains; do
     chain="$work/$name.h5"
     case "$name" in

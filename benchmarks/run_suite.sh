@@ -88,29 +88,7 @@ for number in "$tandem_n" "$queue_room" "$ncd_blocks" "$ncd_block_size" "$walk_n
     [[ "$number" =~ ^[0-9]+$ ]] || die "'$number' is not a whole number (see the LONGRUN_SUITE_* variables)"
 done
 
-if [[ -z "$work" ]]; then
-    work="$(mktemp -d "${TMPDIR:-/tmp}/longrun-suite.XXXXXX")"
-    if [[ "${LONGRUN_BENCH_KEEP:-0}" != 1 ]]; then
-        # Kept when a run failed, for its logs.
-        trap 'if [[ "${failures:-0}" -eq 0 ]]; then rm -rf -- "$work"; fi' EXIT
-    fi
-fi
-mkdir -p "$work"
-work="$(cd "$work" && pwd)"
-
-describe_machine # before OMP_NUM_THREADS is set: nproc honours it
-
-export OMP_NUM_THREADS=1
-if [[ "$(id -u)" -eq 0 ]]; then # Open MPI refuses root without these
-    export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
-fi
-
-records="$work/records.tsv"
-: > "$records"
-failures=0
-
-
-echo "work folder: $work" >&2
+start_run suite
 for name in $families; do
     chain="$work/$name.h5"
     pin=()

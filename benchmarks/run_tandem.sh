@@ -42,28 +42,7 @@ require_binaries
 "$python" -c 'import h5py, numpy, scipy' 2> /dev/null ||
     die "$python lacks h5py, numpy or scipy"
 
-if [[ -z "$work" ]]; then
-    work="$(mktemp -d "${TMPDIR:-/tmp}/longrun-tandem.XXXXXX")"
-    if [[ "${LONGRUN_BENCH_KEEP:-0}" != 1 ]]; then
-        # Kept when a run failed, for its logs.
-        trap 'if [[ "${failures:-0}" -eq 0 ]]; then rm -rf -- "$work"; fi' EXIT
-    fi
-fi
-mkdir -p "$work"
-work="$(cd "$work" && pwd)"
-
-describe_machine # before OMP_NUM_THREADS is set: nproc honours it
-
-export OMP_NUM_THREADS=1
-if [[ "$(id -u)" -eq 0 ]]; then # Open MPI refuses root without these
-    export OMPI_ALLOW_RUN_AS_ROOT=1 OMPI_ALLOW_RUN_AS_ROOT_CONFIRM=1
-fi
-
-records="$work/records.tsv"
-: > "$records"
-failures=0
-
-echo "work folder: $work" >&2
+start_run tandem
 for n in $sizes; do
     chain="$work/tandem-$n.h5"
     "$family" tandem --n1 "$n" --n2 "$n" -o "$chain" > "$work/tandem-$n.generate.log"
