@@ -158,9 +158,12 @@ class WorkFiles {
     WorkFiles(std::string folder, bool remove) : folder_(std::move(folder)), remove_(remove) {}
     WorkFiles(const WorkFiles&) = delete;
     WorkFiles& operator=(const WorkFiles&) = delete;
-    ~WorkFiles() {
+    ~WorkFiles() { finish(); }
+    // Removes the files now (the destructor does it on an exception's way out).
+    void finish() {
         if (!remove_)
             return;
+        remove_ = false;
         for (const auto& f : files_)
             remove_quietly(f);
         // Other array tasks may still use the folder: only an empty one goes.
@@ -501,6 +504,8 @@ SweepTable run_sweep(MPI_Comm comm, const SweepRequest& request) {
             break;
     }
     MPI_Barrier(comm); // every rank is done with the last result before it goes
+    work.finish();
+    MPI_Barrier(comm); // and no rank returns before the files are gone
     table.columns = columns_of(table.rows);
     if (request.until && !request.only)
         table.crossing = find_crossing(axis.parameter, table.rows, *request.until);
