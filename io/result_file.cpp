@@ -69,6 +69,13 @@ void write_result_file(const std::string& path, MPI_Comm comm, const ResultConte
             h5::write_attribute(g, "residual", c.residual, file);
             h5::write_attribute(g, "residual_definition", c.residual_definition, file);
             h5::write_attribute(g, "tolerance", c.tolerance, file);
+            h5::write_attribute(g, "error_estimate", c.error_estimate, file);
+            h5::write_attribute(g, "error_estimate_method",
+                                c.error_estimate_method.empty() ? std::string("none")
+                                                                : c.error_estimate_method,
+                                file);
+            if (c.residual_tolerance > 0)
+                h5::write_attribute(g, "residual_tolerance", c.residual_tolerance, file);
             h5::write_attribute(g, "norm_error", c.norm_error, file);
             h5::write_attribute(g, "min_entry", c.min_entry, file);
             h5::write_attribute(g, "clipped_mass", c.clipped_mass, file);

@@ -31,7 +31,10 @@ struct CertificateRecord {
     std::vector<std::string> trace;
     std::uint64_t iterations = 0;
     double residual = 0;
-    double tolerance = 0;
+    double tolerance = 0;          // on the estimated error
+    double residual_tolerance = 0; // > 0: certified on the residual (--residual-tol)
+    double error_estimate = 0;     // estimated ||pi_hat - pi||_1; inf when none
+    std::string error_estimate_method;
     double norm_error = 0; // |sum(pi) - 1| before normalisation
     double min_entry = 0;
     double clipped_mass = 0;

@@ -35,6 +35,7 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
     }
     o.request.method = o.solver.method;
     o.request.tolerance = o.solver.tolerance;
+    o.request.residual_tolerance = o.solver.residual_tolerance;
     o.request.preconditioner = solve::preconditioner_named(o.solver.preconditioner);
     o.request.partition = *partition::parse_layout(o.partition);
     o.request.progress = !o.quiet;

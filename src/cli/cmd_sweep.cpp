@@ -115,6 +115,7 @@ int sweep_command(MPI_Comm comm, SweepOptions& o) {
         r.only = static_cast<std::size_t>(o.only);
     r.method = o.solver.method;
     r.tolerance = o.solver.tolerance;
+    r.residual_tolerance = o.solver.residual_tolerance;
     r.preconditioner = solve::preconditioner_named(o.solver.preconditioner);
     r.solver_progress = o.verbose;
     r.work_folder = o.work.empty() ? o.prefix + ".work" : o.work;

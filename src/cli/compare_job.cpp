@@ -16,6 +16,7 @@
 
 #include <algorithm>
 #include <chrono>
+#include <cmath>
 #include <sstream>
 
 namespace longrun::cli {
@@ -116,8 +117,11 @@ CompareRun one_run(MPI_Comm comm, const CompareChain& chain, const solve::Transp
             run.status = RunStatus::failed;
         } else {
             run.status = record.met ? RunStatus::converged : RunStatus::not_converged;
-            if (outcome.pi)
+            if (outcome.pi) {
                 run.residual = outcome.certificate.residual;
+                if (std::isfinite(outcome.certificate.error_estimate))
+                    run.error_estimate = outcome.certificate.error_estimate;
+            }
         }
     } catch (const Error& e) {
         // Only errors that every rank throws alike may be turned into a row;

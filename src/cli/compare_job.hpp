@@ -44,9 +44,10 @@ struct CompareRun {
     double seconds = 0;                           // wall
     std::uint64_t peak_memory_bytes = 0;          // process peak after the run, largest rank
     std::uint64_t peak_memory_increase_bytes = 0; // how much the run raised it, largest rank
-    std::optional<double> residual; // final certificate; none when nothing was computed
-    std::string outcome;            // one line
-    std::vector<double> history;    // the method's own residual per iteration
+    std::optional<double> residual;       // final certificate; none when nothing was computed
+    std::optional<double> error_estimate; // estimated ||pi_hat - pi||_1; none when not estimated
+    std::string outcome;                  // one line
+    std::vector<double> history;          // the method's own residual per iteration
     std::vector<double> history_seconds;
 };
 

@@ -47,8 +47,8 @@ bool ran(const CompareRun& run) {
 } // namespace
 
 std::string compare_text(const CompareReport& r) {
-    std::string out = fmt::format("tolerance    {:.1e} on the certified residual, every method "
-                                  "alone, {} rank(s)\n",
+    std::string out = fmt::format("tolerance    {:.1e} on the estimated error ||pi_hat - pi||_1, "
+                                  "every method alone, {} rank(s)\n",
                                   r.tolerance, r.ranks);
     for (const auto& c : r.chains) {
         out += fmt::format("\nchain        {}: {}{}, {} states, {} transitions\n", c.path,
@@ -58,22 +58,24 @@ std::string compare_text(const CompareReport& r) {
         if (c.solvable)
             out += fmt::format("product      one product with the matrix takes {:.3g} ms\n",
                                c.product_seconds * 1e3);
-        out += fmt::format("\n{:<13} {:>4} {:>6} {:>9} {:>10} {:>9} {:>9} {:>10}  {}\n", "method",
-                           "conv", "iters", "products", "prod-equiv", "seconds", "peak MiB",
-                           "residual", "outcome");
+        out += fmt::format("\n{:<13} {:>4} {:>6} {:>9} {:>10} {:>9} {:>9} {:>10} {:>10}  {}\n",
+                           "method", "conv", "iters", "products", "prod-equiv", "seconds",
+                           "peak MiB", "est. error", "residual", "outcome");
         for (const auto& run : r.runs) {
             if (run.chain != c.path)
                 continue;
             if (!ran(run)) {
-                out += fmt::format("{:<13} {:>4} {:>6} {:>9} {:>10} {:>9} {:>9} {:>10}  {}\n",
-                                   run.method, "-", "-", "-", "-", "-", "-", "-", run.outcome);
+                out +=
+                    fmt::format("{:<13} {:>4} {:>6} {:>9} {:>10} {:>9} {:>9} {:>10} {:>10}  {}\n",
+                                run.method, "-", "-", "-", "-", "-", "-", "-", "-", run.outcome);
                 continue;
             }
-            out +=
-                fmt::format("{:<13} {:>4} {:>6} {:>9} {:>10.0f} {:>9.3g} {:>9.0f} {:>10}  {}\n",
-                            run.method, yes_no(run), run.iterations, run.matvecs,
-                            run.product_equivalents, run.seconds, mib(run.peak_memory_bytes),
-                            run.residual ? fmt::format("{:.2e}", *run.residual) : "-", run.outcome);
+            out += fmt::format(
+                "{:<13} {:>4} {:>6} {:>9} {:>10.0f} {:>9.3g} {:>9.0f} {:>10} {:>10}  {}\n",
+                run.method, yes_no(run), run.iterations, run.matvecs, run.product_equivalents,
+                run.seconds, mib(run.peak_memory_bytes),
+                run.error_estimate ? fmt::format("{:.2e}", *run.error_estimate) : "-",
+                run.residual ? fmt::format("{:.2e}", *run.residual) : "-", run.outcome);
         }
     }
     out += fmt::format("\nproducts: PETSc products with the chain's matrix (those inside hypre or "
@@ -113,11 +115,14 @@ nlohmann::json compare_json(const CompareReport& r) {
                               {"peak_memory_bytes", run.peak_memory_bytes},
                               {"peak_memory_increase_bytes", run.peak_memory_increase_bytes},
                               {"residual", nullptr},
+                              {"error_estimate", nullptr},
                               {"outcome", run.outcome},
                               {"history", run.history},
                               {"history_seconds", run.history_seconds}};
         if (run.residual)
             row["residual"] = *run.residual;
+        if (run.error_estimate)
+            row["error_estimate"] = *run.error_estimate;
         runs.push_back(std::move(row));
     }
     j["runs"] = runs;
@@ -127,17 +132,18 @@ nlohmann::json compare_json(const CompareReport& r) {
 std::string compare_csv(const CompareReport& r) {
     std::string out = "chain,kind,states,transitions,method,status,converged,iterations,matvecs,"
                       "product_equivalents,wall_seconds,peak_memory_bytes,"
-                      "peak_memory_increase_bytes,residual,tolerance,outcome\n";
+                      "peak_memory_increase_bytes,residual,error_estimate,tolerance,outcome\n";
     for (const auto& run : r.runs) {
         const CompareChain* c = chain_of(r, run.chain);
-        out += fmt::format("{},{},{},{},{},{},{},{},{},{:.6g},{:.6g},{},{},{},{:.3g},{}\n",
+        out += fmt::format("{},{},{},{},{},{},{},{},{},{:.6g},{:.6g},{},{},{},{},{:.3g},{}\n",
                            csv_field(run.chain), c ? io::to_string(c->kind) : "", c ? c->states : 0,
                            c ? c->transitions : 0, csv_field(run.method), to_string(run.status),
                            run.status == RunStatus::converged ? "true" : "false", run.iterations,
                            run.matvecs, run.product_equivalents, run.seconds, run.peak_memory_bytes,
                            run.peak_memory_increase_bytes,
-                           run.residual ? fmt::format("{:.6e}", *run.residual) : "", r.tolerance,
-                           csv_field(run.outcome));
+                           run.residual ? fmt::format("{:.6e}", *run.residual) : "",
+                           run.error_estimate ? fmt::format("{:.6e}", *run.error_estimate) : "",
+                           r.tolerance, csv_field(run.outcome));
     }
     return out;
 }

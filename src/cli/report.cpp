@@ -8,6 +8,10 @@ namespace longrun::cli {
 
 namespace {
 
+nlohmann::json finite_or_null(double v) {
+    return std::isfinite(v) ? nlohmann::json(v) : nlohmann::json(nullptr);
+}
+
 std::string number(double v, bool integral) {
     if (integral && std::abs(v) < 1e15)
         return fmt::format("{}", static_cast<long long>(std::llround(v)));
@@ -83,6 +87,7 @@ nlohmann::json to_json(const SolveReport& r) {
                             {"matvecs", a.matvecs},
                             {"seconds", a.seconds},
                             {"residual", a.residual},
+                            {"error_estimate", finite_or_null(a.error_estimate)},
                             {"certified", a.met},
                             {"outcome", a.outcome},
                             {"notes", a.notes}});
@@ -98,7 +103,12 @@ nlohmann::json to_json(const SolveReport& r) {
                         {"residual", r.certificate.residual},
                         {"residual_definition", r.residual_definition},
                         {"tolerance", r.tolerance},
-                        {"certified", r.certificate.meets(r.tolerance)},
+                        {"error_estimate", finite_or_null(r.certificate.error_estimate)},
+                        {"error_estimate_method", r.certificate.error_estimate_method},
+                        {"residual_tolerance", r.residual_tolerance > 0
+                                                   ? nlohmann::json(r.residual_tolerance)
+                                                   : nlohmann::json(nullptr)},
+                        {"certified", r.certified()},
                         {"min_entry", r.certificate.min_entry},
                         {"clipped_mass", r.certificate.clipped_mass},
                         {"norm_error", r.certificate.norm_error}};
@@ -109,6 +119,7 @@ nlohmann::json to_json(const SolveReport& r) {
                                  {"method", c.method},
                                  {"iterations", c.iterations},
                                  {"residual", c.residual},
+                                 {"error_estimate", finite_or_null(c.error_estimate)},
                                  {"representatives", c.representatives}};
             if (r.kind == io::ChainKind::dtmc)
                 cj["period"] = c.period;
@@ -193,14 +204,31 @@ std::string to_text(const SolveReport& r) {
             t += fmt::format("  ... and {} more (see --json or the result file)\n",
                              r.classes.size() - 20);
     }
-    if (r.has_distribution)
-        t += fmt::format("certificate  {} = {:.2e} <= {:.1e}: certified{}\n", r.residual_definition,
-                         r.certificate.residual, r.tolerance,
-                         r.classes.empty() ? "" : " (the mixture, against the whole chain)");
-    else
-        t += fmt::format("certificate  every class within {:.1e} (largest {:.2e}); no start "
-                         "given, so no single long-run distribution\n",
-                         r.tolerance, r.certificate.residual);
+    if (r.has_distribution) {
+        const bool on_residual = r.residual_tolerance > 0;
+        t += on_residual
+                 ? fmt::format("certificate  residual {} = {:.2e} <= {:.1e} (--residual-tol): "
+                               "certified{}\n",
+                               r.residual_definition, r.certificate.residual, r.residual_tolerance,
+                               r.classes.empty() ? "" : " (the mixture, against the whole chain)")
+                 : fmt::format("certificate  estimated error ||pi_hat - pi||_1 = {:.2e} <= {:.1e}: "
+                               "certified{}\n",
+                               r.certificate.error_estimate, r.tolerance,
+                               r.classes.empty() ? "" : " (the mixture, against the whole chain)");
+        t += on_residual ? fmt::format("             estimated error ||pi_hat - pi||_1 = {:.2e}\n",
+                                       r.certificate.error_estimate)
+                         : fmt::format("             residual {} = {:.2e}\n", r.residual_definition,
+                                       r.certificate.residual);
+        t += fmt::format("             estimate: {}\n", r.certificate.error_estimate_method);
+        t += fmt::format("             any probability from this distribution is within {:.1e} "
+                         "of the exact one\n",
+                         r.certificate.error_estimate / 2);
+    } else {
+        t += fmt::format("certificate  every class within {:.1e} (largest estimated error {:.2e}, "
+                         "largest residual {:.2e}); no start given, so no single long-run "
+                         "distribution\n",
+                         r.tolerance, r.certificate.error_estimate, r.certificate.residual);
+    }
     if (r.certificate.clipped_mass > 0)
         t += fmt::format(
             "             {:.2e} of negative rounding mass clipped (min entry {:.2e})\n",

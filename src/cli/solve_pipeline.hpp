@@ -23,7 +23,8 @@ struct SolveRequest {
     std::string chain_path;
     std::optional<std::string> output;
     std::string method = "auto";
-    double tolerance = 1e-10;
+    double tolerance = 1e-10;      // on the estimated error ||pi_hat - pi||_1
+    double residual_tolerance = 0; // > 0: certify on the residual (--residual-tol)
     io::ValidationOptions validation;
     solve::LinearPreconditioner preconditioner = solve::LinearPreconditioner::amg;
     bool progress = true;
@@ -69,6 +70,7 @@ struct ClassOutcome {
     std::string method;
     long iterations = 0;
     double residual = 0;
+    double error_estimate = 0;
     std::optional<double> probability; // of ending in this class, given a start
 };
 
@@ -95,6 +97,8 @@ struct SolveReport {
     long iterations = 0;
     solve::Certificate certificate;
     double tolerance = 0;
+    double residual_tolerance = 0; // > 0: certified on the residual
+    bool certified() const { return certificate.meets(tolerance, residual_tolerance); }
     std::string residual_definition;
     double wall_seconds = 0;
     // Seconds per phase in the order they ran (rank 0's clock; every phase ends in

@@ -9,8 +9,9 @@
 namespace longrun::cli {
 
 struct SolverOptions {
-    std::string method = "auto"; // a method name or a comma list tried in order
-    double tolerance = 1e-10;    // on the certificate's residual
+    std::string method = "auto";   // a method name or a comma list tried in order
+    double tolerance = 1e-10;      // on the estimated error ||pi_hat - pi||_1
+    double residual_tolerance = 0; // > 0: --residual-tol, certify on the residual
     std::string preconditioner = "amg";
 };
 

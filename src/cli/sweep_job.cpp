@@ -437,6 +437,7 @@ SweepTable run_sweep(MPI_Comm comm, const SweepRequest& request) {
         solve.output = result_path;
         solve.method = request.method;
         solve.tolerance = request.tolerance;
+        solve.residual_tolerance = request.residual_tolerance;
         solve.preconditioner = request.preconditioner;
         solve.progress = request.solver_progress;
         // One warning for the whole sweep (see SweepRow::bound_mass), not one per point.

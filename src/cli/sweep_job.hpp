@@ -84,7 +84,8 @@ struct SweepRequest {
     std::string work_folder; // chain and result files of the points
     bool keep = false;       // leave them there (with /summary stored in each result)
     std::string method = "auto";
-    double tolerance = 1e-10;
+    double tolerance = 1e-10;      // on the estimated error
+    double residual_tolerance = 0; // > 0: on the residual (--residual-tol)
     solve::LinearPreconditioner preconditioner = solve::LinearPreconditioner::amg;
     std::uint64_t max_states = 0;
     std::optional<std::size_t> only; // compute just this point (job arrays)

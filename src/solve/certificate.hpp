@@ -6,6 +6,7 @@
 
 #include "assemble.hpp"
 
+#include <cmath>
 #include <string>
 
 namespace longrun::solve {
@@ -19,7 +20,20 @@ struct Certificate {
     double norm_error = 0;   // |sum(pi) - 1| after normalisation, a rounding check
     bool valid = false;      // finite, normalisable, no significant negative entry
     std::string problem;     // why not valid
-    bool meets(double tolerance) const noexcept { return valid && residual <= tolerance; }
+    // Estimated ||pi_hat - pi||_1 (error_goal.hpp); infinite until estimated.
+    double error_estimate = INFINITY;
+    std::string error_estimate_method;
+    // Certified: the estimated error is within `error_tolerance`; or, when a
+    // residual tolerance is given (> 0, the user's --residual-tol), the residual
+    // is within it and an error estimate exists to report beside it.
+    bool meets(double error_tolerance, double residual_tolerance = 0) const noexcept {
+        if (!valid || !std::isfinite(error_estimate))
+            return false;
+        return residual_tolerance > 0 ? residual <= residual_tolerance
+                                      : error_estimate <= error_tolerance;
+    }
+    // The residual alone is within `tolerance` (a step towards a certificate).
+    bool residual_within(double tolerance) const noexcept { return valid && residual <= tolerance; }
 };
 
 std::string residual_definition(TimeModel time);

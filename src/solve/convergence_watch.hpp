@@ -23,6 +23,9 @@ class ConvergenceWatch {
     ConvergenceWatch(long window, double target, long max_iterations)
         : window_(std::max(1L, window)), target_(target), max_iterations_(max_iterations) {}
 
+    // A refinement step lowered the residual sought.
+    void set_target(double target) noexcept { target_ = target; }
+
     // A reason to stop, or nothing. Same inputs on every rank give the same answer.
     std::optional<StopReason> observe(long iteration, double residual) {
         if (std::isfinite(residual))

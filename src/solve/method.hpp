@@ -46,8 +46,9 @@ struct StateCoordinates {
 };
 
 struct MethodSettings {
-    double tolerance = 1e-10; // on the certificate's residual
-    int max_rounds = 5;       // solve, certify, tighten the solver's tolerance, repeat
+    double tolerance = 1e-10;      // on the estimated error ||pi_hat - pi||_1
+    double residual_tolerance = 0; // > 0: certify on the residual instead (--residual-tol)
+    int max_rounds = 16;           // solve, certify, tighten the solver's tolerance, repeat
     LinearPreconditioner preconditioner = LinearPreconditioner::amg;
     Progress* progress = nullptr;
     IterateSink* checkpoint = nullptr;             // null: no checkpoints
@@ -86,13 +87,20 @@ Attempt run_aggregation(const TransposedChain& a, Vec warm_start, const MethodSe
 
 namespace longrun::solve {
 
-// A valid certificate beats an invalid one; then the smaller residual wins.
+// A valid certificate beats an invalid one; then one with an error estimate
+// beats one without (its error is known); then the smaller estimate, and last
+// the smaller residual.
 inline bool is_better(const Certificate& c, const Attempt& so_far) {
     if (!so_far.x)
         return true;
     const auto& p = so_far.certificate;
     if (c.valid != p.valid)
         return c.valid;
+    const bool estimated = std::isfinite(c.error_estimate);
+    if (estimated != std::isfinite(p.error_estimate))
+        return estimated;
+    if (estimated && c.error_estimate != p.error_estimate)
+        return c.error_estimate < p.error_estimate;
     return c.residual < p.residual;
 }
 

@@ -20,6 +20,8 @@
 #include "gth.hpp"
 #include "method.hpp"
 
+#include "error_goal.hpp"
+
 #include "io/error.hpp"
 
 #include <fmt/format.h>
@@ -341,6 +343,7 @@ Attempt run_aggregation(const TransposedChain& a, Vec warm_start, const MethodSe
     VecHandle candidate = create_state_vector(a);
     long cycle = 0;
     IterantRecombination recombination(top.x, static_cast<int>(o.window));
+    ErrorGoal goal(a, s);
     VecHandle r = create_state_vector(a), combined_x = create_state_vector(a),
               combined_r = create_state_vector(a);
     const double scale = a.time == TimeModel::discrete ? 1.0 : a.uniformisation;
@@ -374,14 +377,18 @@ Attempt run_aggregation(const TransposedChain& a, Vec warm_start, const MethodSe
             stopped = "a non-finite residual";
             break;
         }
-        if (residual <= s.tolerance) {
+        if (residual <= goal.residual_target()) {
             check(VecCopy(top.x, candidate), "VecCopy");
-            const Certificate c = certify(a, candidate);
+            Certificate c = certify(a, candidate);
+            const bool done = goal.judge(candidate, c);
             keep_if_better(attempt, a, candidate, c);
-            if (c.meets(s.tolerance)) {
-                stopped = "the certificate is met";
+            if (done) {
+                stopped = goal.gave_up() ? goal.stop_reason() : "the certificate is met";
                 break;
             }
+            // The next step of the refinement sequence starts from here.
+            best = residual;
+            since_gain = 0;
         }
         if (residual < 0.99 * best) {
             best = residual;
@@ -391,16 +398,16 @@ Attempt run_aggregation(const TransposedChain& a, Vec warm_start, const MethodSe
             break;
         }
     }
-    if (!attempt.certificate.meets(s.tolerance)) {
+    if (!attempt.certificate.meets(s.tolerance, s.residual_tolerance)) {
         check(VecCopy(top.x, candidate), "VecCopy");
         const Certificate c = certify(a, candidate);
         keep_if_better(attempt, a, candidate, c);
     }
     attempt.notes.push_back(
         fmt::format("{}-cycles, {} pre / {} post Gauss-Seidel sweeps, recombination window {}: "
-                    "{} cycles, stopped by {}; set-up {:.3f} s",
+                    "{} cycles, stopped by {}; set-up {:.3f} s; corrections {}",
                     o.w_cycle ? "W" : "V", o.pre_sweeps, o.post_sweeps, o.window, cycle, stopped,
-                    setup_seconds));
+                    setup_seconds, goal.summary()));
     attempt.notes.push_back("seconds per level, finest first: " + h.seconds_per_level());
     if (s.progress)
         s.progress->note("aggregation: " + attempt.notes[attempt.notes.size() - 2]);

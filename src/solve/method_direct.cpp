@@ -15,6 +15,7 @@
 // with the same factors: r = b - M x, x += M^{-1} r.
 #include "method.hpp"
 
+#include "error_goal.hpp"
 #include "iterate_start.hpp"
 
 #include <fmt/format.h>
@@ -138,6 +139,9 @@ Attempt run_direct(const TransposedChain& a, Vec warm_start, const MethodSetting
     VecHandle x = create_state_vector(a), r = create_state_vector(a);
     VecHandle correction = create_state_vector(a), candidate = create_state_vector(a);
     check(MatSolve(factor, b, x), "MatSolve");
+    // Refinement with exact factors: at the rounding floor its corrections
+    // measure the rounding error of the solve itself (error_goal.hpp).
+    ErrorGoal goal(a, s, true);
     for (int round = 0; round < std::max(1, s.max_rounds); ++round) {
         if (round > 0) { // iterative refinement with the same factors
             check(MatMult(m, x, r), "MatMult");
@@ -146,18 +150,22 @@ Attempt run_direct(const TransposedChain& a, Vec warm_start, const MethodSetting
             check(VecAXPY(x, 1.0, correction), "VecAXPY");
         }
         check(VecCopy(x, candidate), "VecCopy");
-        const Certificate c = certify(a, candidate);
+        Certificate c = certify(a, candidate);
+        const bool done = goal.judge(candidate, c);
         ++attempt.iterations;
         record_iteration(attempt, round, c.valid ? c.residual : INFINITY, s);
         attempt.notes.push_back(
             fmt::format("{}: certified residual {:.3e}{}",
                         round == 0 ? "solve" : "refinement " + std::to_string(round), c.residual,
                         c.valid ? "" : " (" + c.problem + ")"));
-        const bool improved = is_better(c, attempt);
         keep_if_better(attempt, a, candidate, c);
-        if (c.meets(s.tolerance) || (round > 0 && !improved))
-            break; // met, or refinement has reached the rounding floor
+        if (done) {
+            if (goal.gave_up())
+                attempt.notes.push_back(goal.stop_reason());
+            break;
+        }
     }
+    attempt.notes.push_back("corrections " + goal.summary());
     return attempt;
 }
 

@@ -4,6 +4,8 @@
 // -1 on the unit circle. Options prefix: -eigen_.
 #include "method.hpp"
 
+#include "error_goal.hpp"
+
 #include <fmt/format.h>
 
 #include <cmath>
@@ -63,6 +65,7 @@ Attempt run_eigen(const TransposedChain& a, Vec warm_start, const MethodSettings
         Vec initial[1] = {warm_start};
         check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");
     }
+    ErrorGoal goal(a, s);
     for (int round = 0; round < s.max_rounds; ++round) {
         ctx.base_iteration = attempt.iterations;
         check(EPSSolve(eps), "EPSSolve");
@@ -77,17 +80,24 @@ Attempt run_eigen(const TransposedChain& a, Vec warm_start, const MethodSettings
         }
         PetscScalar kr = 0, ki = 0;
         check(EPSGetEigenpair(eps, 0, &kr, &ki, x, nullptr), "EPSGetEigenpair");
-        const Certificate c = certify(a, x);
+        Certificate c = certify(a, x);
+        const bool done = goal.judge(x, c);
         attempt.notes.push_back(fmt::format(
             "round {}: {} iterations, eigenvalue {:.15g}{:+.2e}i, certified residual {:.3e}",
             round + 1, its, kr, ki, c.residual));
         keep_if_better(attempt, a, x, c);
-        if (c.meets(s.tolerance))
+        if (done) {
+            if (goal.gave_up())
+                attempt.notes.push_back(goal.stop_reason());
             break;
+        }
+        if (round + 1 == s.max_rounds)
+            attempt.notes.push_back(fmt::format("{} rounds without a certificate (corrections {})",
+                                                s.max_rounds, goal.summary()));
         // SLEPc's monitor sees no eigenvector, so checkpoints happen between rounds.
         if (s.checkpoint && s.checkpoint->due())
             s.checkpoint->save(attempt.x, "eigen", attempt.iterations);
-        tol = tightened(tol, c, s.tolerance);
+        tol = tightened(tol, c, goal.residual_target());
         check(EPSSetTolerances(eps, tol, 100000), "EPSSetTolerances");
         Vec initial[1] = {attempt.x.get()};
         check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");

@@ -25,6 +25,8 @@
 // the number of ranks; on one rank it is the true sequential sweep.
 #include "method.hpp"
 
+#include "error_goal.hpp"
+
 #include "convergence_watch.hpp"
 #include "iterate_start.hpp"
 
@@ -101,7 +103,8 @@ Attempt run_gauss_seidel(const TransposedChain& a, Vec warm_start, const MethodS
     VecHandle candidate = create_state_vector(a);
     check(VecSet(zero, 0.0), "VecSet");
     const double scale = a.time == TimeModel::discrete ? 1.0 : 1.0 / a.uniformisation;
-    ConvergenceWatch watch(window, s.tolerance, max_it);
+    ErrorGoal goal(a, s);
+    ConvergenceWatch watch(window, goal.residual_target(), max_it);
     std::string stopped = fmt::format("sweep limit {} reached (-gs_max_it)", max_it);
 
     long it = 0;
@@ -120,15 +123,18 @@ Attempt run_gauss_seidel(const TransposedChain& a, Vec warm_start, const MethodS
         check(VecNorm(y, NORM_1, &norm), "VecNorm");
         const double residual = norm * scale;
         record_iteration(attempt, attempt.iterations + it, residual, s);
-        if (residual <= s.tolerance) {
+        if (residual <= goal.residual_target()) {
             check(VecCopy(x, candidate), "VecCopy");
-            const Certificate c = certify(a, candidate);
+            Certificate c = certify(a, candidate);
+            const bool done = goal.judge(candidate, c);
             keep_if_better(attempt, a, candidate, c);
-            if (c.meets(s.tolerance)) {
-                stopped = fmt::format("certified after sweep {}", it + 1);
+            if (done) {
+                stopped = goal.gave_up() ? goal.stop_reason()
+                                         : fmt::format("certified after sweep {}", it + 1);
                 ++it;
                 break;
             }
+            watch.set_target(goal.residual_target());
         }
         if (s.checkpoint && s.checkpoint->due())
             s.checkpoint->save(x, "gauss-seidel", attempt.iterations + it + 1);
@@ -139,7 +145,7 @@ Attempt run_gauss_seidel(const TransposedChain& a, Vec warm_start, const MethodS
                                                     omega, it + 2, reason->text));
                 if (s.progress)
                     s.progress->note("gauss-seidel: " + attempt.notes.back());
-                watch = ConvergenceWatch(window, s.tolerance, max_it);
+                watch = ConvergenceWatch(window, goal.residual_target(), max_it);
                 continue;
             }
             stopped = "stopped early: " + reason->text;
@@ -149,12 +155,13 @@ Attempt run_gauss_seidel(const TransposedChain& a, Vec warm_start, const MethodS
     }
     attempt.iterations += it;
 
-    if (!attempt.certificate.meets(s.tolerance)) {
+    if (!attempt.certificate.meets(s.tolerance, s.residual_tolerance)) {
         check(VecCopy(x, candidate), "VecCopy");
         keep_if_better(attempt, a, candidate, certify(a, candidate));
     }
-    attempt.notes.push_back(fmt::format("{} sweeps, {}; certified residual {:.3e}",
-                                        attempt.iterations, stopped, attempt.certificate.residual));
+    attempt.notes.push_back(fmt::format("{} sweeps, {}; certified residual {:.3e}; corrections {}",
+                                        attempt.iterations, stopped, attempt.certificate.residual,
+                                        goal.summary()));
     return attempt;
 }
 

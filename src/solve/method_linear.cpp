@@ -10,6 +10,8 @@
 #include "iterate_start.hpp"
 #include "method.hpp"
 
+#include "error_goal.hpp"
+
 #include <fmt/format.h>
 
 #include <cmath>
@@ -90,7 +92,7 @@ void configure_preconditioner(PC pc, LinearPreconditioner kind) {
 
 // pin == no_pin: the singular system A x = 0 itself.
 Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin, const MethodSettings& s,
-                     Attempt attempt) {
+                     ErrorGoal& goal, Attempt attempt) {
     MPI_Comm comm = PetscObjectComm((PetscObject)a.matrix.get());
     MatHandle m;
     check(MatDuplicate(a.matrix, MAT_COPY_VALUES, m.out()), "MatDuplicate");
@@ -152,18 +154,25 @@ Attempt solve_pinned(const TransposedChain& a, Vec start, PetscInt pin, const Me
         check(KSPGetConvergedReason(ksp, &reason), "KSPGetConvergedReason");
         attempt.iterations += its;
         check(VecCopy(x, candidate), "VecCopy");
-        const Certificate c = certify(a, candidate);
+        Certificate c = certify(a, candidate);
+        const bool done = goal.judge(candidate, c);
         attempt.notes.push_back(fmt::format("{} round {}: {} iterations, solver says {}, "
                                             "certified residual {:.3e}",
                                             pin == no_pin ? "singular system" : "pinned system",
                                             round + 1, its, KSPConvergedReasons[reason],
                                             c.residual));
         keep_if_better(attempt, a, candidate, c);
-        if (c.meets(s.tolerance))
+        if (done) {
+            if (goal.gave_up())
+                attempt.notes.push_back(goal.stop_reason());
             break;
+        }
+        if (round + 1 == s.max_rounds)
+            attempt.notes.push_back(fmt::format("{} rounds without a certificate (corrections {})",
+                                                s.max_rounds, goal.summary()));
         if (reason < 0 && its == 0)
             break; // the solver cannot move: more rounds will not help
-        rtol = tightened(rtol, c, s.tolerance);
+        rtol = tightened(rtol, c, goal.residual_target());
         check(KSPSetTolerances(ksp, rtol, 1e-300, PETSC_DEFAULT, limit), "KSPSetTolerances");
     }
     return attempt;
@@ -186,6 +195,7 @@ Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSetting
     if (s.progress)
         s.progress->begin("linear", s.tolerance);
 
+    ErrorGoal goal(a, s);
     // -linear_pin STATE: solve the pinned system at a state the user knows to be likely.
     PetscInt chosen = -1;
     PetscBool given = PETSC_FALSE;
@@ -199,8 +209,8 @@ Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSetting
         // survives and no pin has to be guessed. Measured on a 1,002,001-state
         // tandem line: 22 iterations against 32-150 for pinned systems,
         // depending on the pin (benchmarks/RESULTS.md).
-        attempt = solve_pinned(a, start, no_pin, s, std::move(attempt));
-        if (attempt.certificate.meets(s.tolerance))
+        attempt = solve_pinned(a, start, no_pin, s, goal, std::move(attempt));
+        if (attempt.certificate.meets(s.tolerance, s.residual_tolerance) || goal.gave_up())
             return attempt;
         if (attempt.x && attempt.certificate.valid)
             check(VecCopy(attempt.x, start), "VecCopy");
@@ -213,7 +223,7 @@ Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSetting
         fmt::format("pinning state {} (estimated probability {:.2e})", pin, entry_at(start, pin)));
     if (s.progress)
         s.progress->note("linear: " + attempt.notes.back());
-    attempt = solve_pinned(a, start, pin, s, std::move(attempt));
+    attempt = solve_pinned(a, start, pin, s, goal, std::move(attempt));
     return attempt;
 }
 

@@ -19,6 +19,8 @@
 // -power_lazy true|false forces either choice.
 #include "method.hpp"
 
+#include "error_goal.hpp"
+
 #include "convergence_watch.hpp"
 #include "iterate_start.hpp"
 
@@ -87,7 +89,8 @@ Attempt run_power(const TransposedChain& a, Vec warm_start, const MethodSettings
     normalise(x);
     VecHandle y = create_state_vector(a), step = create_state_vector(a);
     VecHandle earlier_step = create_state_vector(a), candidate = create_state_vector(a);
-    ConvergenceWatch watch(window, s.tolerance, max_it);
+    ErrorGoal goal(a, s);
+    ConvergenceWatch watch(window, goal.residual_target(), max_it);
     std::string stopped = fmt::format("iteration limit {} reached (-power_max_it)", max_it);
 
     long it = 0;
@@ -103,14 +106,17 @@ Attempt run_power(const TransposedChain& a, Vec warm_start, const MethodSettings
         check(VecNorm(step, NORM_1, &residual), "VecNorm");
         record_iteration(attempt, attempt.iterations + it, residual, s);
 
-        if (residual <= s.tolerance) {
+        if (residual <= goal.residual_target()) {
             check(VecCopy(x, candidate), "VecCopy");
-            const Certificate c = certify(a, candidate);
+            Certificate c = certify(a, candidate);
+            const bool done = goal.judge(candidate, c);
             keep_if_better(attempt, a, candidate, c);
-            if (c.meets(s.tolerance)) {
-                stopped = fmt::format("certified at iteration {}", it);
+            if (done) {
+                stopped = goal.gave_up() ? goal.stop_reason()
+                                         : fmt::format("certified at iteration {}", it);
                 break;
             }
+            watch.set_target(goal.residual_target());
         }
         if (!std::isfinite(residual)) {
             stopped = "the iterate is no longer finite";
@@ -129,7 +135,7 @@ Attempt run_power(const TransposedChain& a, Vec warm_start, const MethodSettings
                     "switched to the lazy chain at iteration {}: successive steps point in "
                     "opposite directions (cosine {:.3f}), the chain is (nearly) periodic",
                     it, cosine));
-                watch = ConvergenceWatch(window, s.tolerance, max_it);
+                watch = ConvergenceWatch(window, goal.residual_target(), max_it);
             }
         }
 
@@ -145,7 +151,7 @@ Attempt run_power(const TransposedChain& a, Vec warm_start, const MethodSettings
                 lazy = true;
                 attempt.notes.push_back(fmt::format(
                     "switched to the lazy chain at iteration {}: {}", it, reason->text));
-                watch = ConvergenceWatch(window, s.tolerance, max_it);
+                watch = ConvergenceWatch(window, goal.residual_target(), max_it);
                 continue;
             }
             stopped = "stopped early: " + reason->text;
@@ -154,13 +160,14 @@ Attempt run_power(const TransposedChain& a, Vec warm_start, const MethodSettings
     }
     attempt.iterations += std::min<long>(it + 1, max_it);
 
-    if (!attempt.certificate.meets(s.tolerance)) {
+    if (!attempt.certificate.meets(s.tolerance, s.residual_tolerance)) {
         check(VecCopy(x, candidate), "VecCopy");
         keep_if_better(attempt, a, candidate, certify(a, candidate));
     }
-    attempt.notes.push_back(fmt::format("{} iterations ({}), {}; certified residual {:.3e}",
+    attempt.notes.push_back(fmt::format("{} iterations ({}), {}; certified residual {:.3e}; "
+                                        "corrections {}",
                                         attempt.iterations, lazy ? "lazy" : "plain", stopped,
-                                        attempt.certificate.residual));
+                                        attempt.certificate.residual, goal.summary()));
     return attempt;
 }
 

@@ -18,6 +18,8 @@
 // so its default relative test is meaningful here even for the eigenvalue 0.
 #include "method.hpp"
 
+#include "error_goal.hpp"
+
 #include <fmt/format.h>
 
 #include <cmath>
@@ -109,6 +111,7 @@ Attempt run_shift_invert(const TransposedChain& a, Vec warm_start, const MethodS
         check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");
     }
     VecHandle x = create_state_vector(a);
+    ErrorGoal goal(a, s);
     for (int round = 0; round < s.max_rounds; ++round) {
         ctx.base_iteration = attempt.iterations;
         check(EPSSolve(eps), "EPSSolve");
@@ -123,17 +126,24 @@ Attempt run_shift_invert(const TransposedChain& a, Vec warm_start, const MethodS
         }
         PetscScalar kr = 0, ki = 0;
         check(EPSGetEigenpair(eps, 0, &kr, &ki, x, nullptr), "EPSGetEigenpair");
-        const Certificate c = certify(a, x);
+        Certificate c = certify(a, x);
+        const bool done = goal.judge(x, c);
         attempt.notes.push_back(fmt::format(
             "round {}: {} iterations, eigenvalue {:.15g}{:+.2e}i, certified residual {:.3e}",
             round + 1, its, kr, ki, c.residual));
         keep_if_better(attempt, a, x, c);
-        if (c.meets(s.tolerance))
+        if (done) {
+            if (goal.gave_up())
+                attempt.notes.push_back(goal.stop_reason());
             break;
+        }
+        if (round + 1 == s.max_rounds)
+            attempt.notes.push_back(fmt::format("{} rounds without a certificate (corrections {})",
+                                                s.max_rounds, goal.summary()));
         // The monitor sees no eigenvector, so checkpoints happen between rounds.
         if (s.checkpoint && s.checkpoint->due())
             s.checkpoint->save(attempt.x, "shift-invert", attempt.iterations);
-        tol = tightened(tol, c, s.tolerance);
+        tol = tightened(tol, c, goal.residual_target());
         check(EPSSetTolerances(eps, tol, 1000), "EPSSetTolerances");
         Vec initial[1] = {attempt.x.get()};
         check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");

@@ -112,6 +112,26 @@ long matmult_count() {
 
 } // namespace
 
+std::string describe(const Certificate& c, const MethodSettings& s) {
+    const bool on_residual = s.residual_tolerance > 0;
+    const std::string error =
+        !std::isfinite(c.error_estimate)
+            ? "error not estimated"
+            : fmt::format("estimated error {:.2e}{}", c.error_estimate,
+                          on_residual ? ""
+                          : c.error_estimate <= s.tolerance
+                              ? fmt::format(" <= {:.1e}", s.tolerance)
+                              : fmt::format(" > {:.1e} ({:.0f}x over)", s.tolerance,
+                                            c.error_estimate / s.tolerance));
+    const std::string residual =
+        !on_residual ? fmt::format("residual {:.2e}", c.residual)
+        : c.residual <= s.residual_tolerance
+            ? fmt::format("residual {:.2e} <= {:.1e}", c.residual, s.residual_tolerance)
+            : fmt::format("residual {:.2e} > {:.1e} ({:.0f}x over)", c.residual,
+                          s.residual_tolerance, c.residual / s.residual_tolerance);
+    return on_residual ? residual + ", " + error : error + ", " + residual;
+}
+
 std::vector<std::string> plan_for(const std::string& method, const ChainTraits& traits,
                                   std::string* reason) {
     std::string why;
@@ -148,20 +168,12 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
         best.method = "start";
         best.x = create_state_vector(a);
         check(VecCopy(warm_start, best.x), "VecCopy");
+        // A start carries no error estimate, however small its residual: the
+        // methods below begin from it and refine it, which costs little when it
+        // is already good (a resumed or repeated solve).
         best.certificate = certify(a, best.x);
-        if (best.certificate.meets(settings.tolerance)) {
-            // A resumed or repeated solve whose start is already good enough.
-            AttemptRecord record;
-            record.method = "start";
-            record.residual = best.certificate.residual;
-            record.met = true;
-            record.outcome = fmt::format("the start is already within tolerance: residual {:.3e}",
-                                         record.residual);
-            out.attempts.push_back(std::move(record));
-        }
     }
-    const bool start_met = !out.attempts.empty();
-    for (const auto& name : start_met ? std::vector<std::string>{} : out.plan) {
+    for (const auto& name : out.plan) {
         AttemptRecord record;
         record.method = name;
         Vec warm = best.x ? best.x.get() : nullptr;
@@ -171,18 +183,19 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
             Attempt at = find_method(name)->run(a, warm, settings);
             record.iterations = at.iterations;
             record.residual = at.certificate.residual;
-            record.met = at.certificate.meets(settings.tolerance);
+            record.met = at.certificate.meets(settings.tolerance, settings.residual_tolerance);
+            record.error_estimate = at.certificate.error_estimate;
             record.history = at.history;
             record.history_seconds = at.seconds;
             record.notes = at.notes;
-            record.outcome = record.met ? fmt::format("certified residual {:.3e} <= {:.1e}",
-                                                      record.residual, settings.tolerance)
-                             : at.certificate.valid
-                                 ? fmt::format("certified residual {:.3e} > {:.1e}",
-                                               record.residual, settings.tolerance)
-                             : at.x ? "no valid iterate: " + at.certificate.problem
-                                    : "stopped before producing an iterate" +
-                                          (at.notes.empty() ? "" : " (" + at.notes.back() + ")");
+            record.outcome = !at.certificate.valid ? std::string()
+                             : record.met ? "certified: " + describe(at.certificate, settings)
+                                          : "not certified: " + describe(at.certificate, settings) +
+                                                (at.notes.empty() ? "" : "; " + at.notes.back());
+            if (!at.certificate.valid)
+                record.outcome = at.x ? "no valid iterate: " + at.certificate.problem
+                                      : "stopped before producing an iterate" +
+                                            (at.notes.empty() ? "" : " (" + at.notes.back() + ")");
             out.iterations += at.iterations;
             if (at.x && is_better(at.certificate, best))
                 best = std::move(at);
@@ -219,7 +232,7 @@ SolveOutcome solve_stationary(const TransposedChain& a, const std::string& metho
         out.pi = std::move(best.x);
         out.certificate = best.certificate;
         out.method = best.method;
-        out.met = out.certificate.meets(settings.tolerance);
+        out.met = out.certificate.meets(settings.tolerance, settings.residual_tolerance);
     }
     return out;
 }

@@ -27,6 +27,7 @@ struct AttemptRecord {
     long matvecs = 0; // PETSc products with the chain's matrix (not inside hypre/MUMPS)
     double seconds = 0;
     double residual = 0;
+    double error_estimate = INFINITY;
     bool met = false;
     std::string outcome; // one line: what happened
     std::vector<double> history;
@@ -55,6 +56,10 @@ struct ChainTraits {
     int ranks = 1;
     std::uint64_t memory_per_rank_bytes = 0; // available; 0 when unknown
 };
+
+// One phrase for a certificate against the settings' targets, e.g.
+// "estimated error 3.1e-12 <= 1.0e-10, residual 4.0e-14".
+std::string describe(const Certificate& c, const MethodSettings& s);
 
 std::vector<std::string> method_names(); // "auto" first
 // `method` is "auto", a name, or a comma-separated list tried in order.

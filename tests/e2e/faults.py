@@ -45,7 +45,7 @@ from e2e_common import check
 # (about 6 s on 2 ranks here) and the kill lands mid-run. Invented parameters.
 TANDEM = ["tandem", "--n1", "80", "--n2", "80", "--arrival", "1", "--service1", "1.25",
           "--service2", "1.2"]
-TOL = "1e-13"
+TOL = "1e-11"
 # The run that gets interrupted must not be able to finish first, however fast the
 # machine: it asks for a residual of 1e-30, far below the rounding floor of double
 # precision (about 1e-17 on this chain), and switches off both ways in which power
@@ -57,9 +57,9 @@ TOL = "1e-13"
 UNREACHABLE_TOL = "1e-30"
 ENDLESS = ["--", "-power_max_it", "1000000000", "-power_window", "1000000000"]
 SAFETY_TIMEOUT = "110"
-# Two certified answers to residual 1e-13 agree to about the condition of this
-# slowly mixing chain (a few hundred, measured: 3.6e-10 apart at residual 1e-12)
-# times that; 1e-10 in the 1-norm is the agreement asked for. (common practice)
+# Two answers certified to an estimated error of 1e-11 each are within 2e-11 of
+# each other in the 1-norm; 1e-10 is the agreement asked for, with room for an
+# estimate that understates by the 2x the tests allow.
 AGREE = 1e-10
 
 

@@ -19,7 +19,11 @@ using testing_support::MpiTest;
 
 // Certificate target for every method: tighter than the 1e-10 the checks below
 // need, because the error in pi is about residual / spectral gap.
-constexpr double certificate_tolerance = 1e-13;
+// On the estimated error ||pi_hat - pi||_1. Power and Gauss-Seidel cannot
+// certify 1e-12 on the M/M/1/30 chain at load 0.9 (their error there is about
+// 150 times the residual, and the residual floor is near 1e-14), so 1e-11:
+// still ten times below the agreement asked of every answer.
+constexpr double certificate_tolerance = 1e-11;
 constexpr double agreement = 1e-10;
 
 // GTH on the whole chain in this process: the reference every method must meet.
@@ -75,7 +79,7 @@ class EveryMethod : public MpiTest, public ::testing::WithParamInterface<std::st
     std::vector<double> solved(const io::Chain& chain, const std::string& name) {
         const auto report = solve(write(chain, name), GetParam(), certificate_tolerance);
         EXPECT_EQ(report.method, GetParam());
-        EXPECT_LE(report.certificate.residual, certificate_tolerance);
+        EXPECT_LE(report.certificate.error_estimate, certificate_tolerance);
         return gather(report);
     }
 };

@@ -20,7 +20,7 @@ TEST_P(StationaryByMethod, MM1KMatchesTheGeometricClosedForm) {
     const int K = 30;
     const double lambda = 0.9, mu = 1.0, rho = lambda / mu;
     const auto path = write(testing_support::birth_death(1, K, lambda, mu), "mm1k.h5");
-    const auto report = solve(path, GetParam(), 1e-13);
+    const auto report = solve(path, GetParam(), 1e-12);
     const auto pi = gather(report);
     ASSERT_EQ(pi.size(), std::size_t(K + 1));
     for (int n = 0; n <= K; ++n) {
@@ -38,7 +38,7 @@ TEST_P(StationaryByMethod, MMcKMatchesTheClosedForm) {
     const int c = 3, K = 15;
     const double lambda = 2.5, mu = 1.0;
     const auto path = write(testing_support::birth_death(c, K, lambda, mu), "mmck.h5");
-    const auto pi = gather(solve(path, GetParam(), 1e-13));
+    const auto pi = gather(solve(path, GetParam(), 1e-12));
     const auto expected = testing_support::mmck_closed_form(c, K, lambda, mu);
     EXPECT_LT(max_abs_difference(pi, expected), 1e-12);
 }
@@ -50,7 +50,7 @@ TEST_P(StationaryByMethod, LandOfOzWeatherMatchesThePrintedFixedVector) {
     const auto path =
         write(testing_support::dense_dtmc({{0.5, 0.25, 0.25}, {0.5, 0.0, 0.5}, {0.25, 0.25, 0.5}}),
               "oz.h5");
-    const auto pi = gather(solve(path, GetParam(), 1e-14));
+    const auto pi = gather(solve(path, GetParam(), 1e-12));
     EXPECT_LT(max_abs_difference(pi, {0.4, 0.2, 0.4}), 1e-13);
 }
 
@@ -65,7 +65,7 @@ TEST_P(StationaryByMethod, RandomWalkOnAGraphIsProportionalToDegree) {
     for (std::uint64_t v = 0; v < n; v += 3)
         edges.emplace_back(v, (v + 17) % n);
     const auto path = write(testing_support::graph_walk(n, edges), "walk.h5");
-    const auto pi = gather(solve(path, GetParam(), 1e-13));
+    const auto pi = gather(solve(path, GetParam(), 1e-12));
     std::vector<double> expected(n, 0);
     for (auto [a, b] : edges) {
         expected[a] += 1.0 / (2.0 * edges.size());
@@ -87,7 +87,7 @@ TEST_P(StationaryByMethod, EhrenfestUrnIsBinomialDespitePeriodTwo) {
             p[k][k + 1] = double(N - k) / N;
     }
     const auto path = write(testing_support::dense_dtmc(p), "ehrenfest.h5");
-    const auto pi = gather(solve(path, GetParam(), 1e-13));
+    const auto pi = gather(solve(path, GetParam(), 1e-12));
     std::vector<double> expected(N + 1);
     for (int k = 0; k <= N; ++k)
         expected[k] = std::exp(std::lgamma(N + 1) - std::lgamma(k + 1) - std::lgamma(N - k + 1) -
@@ -100,7 +100,7 @@ TEST_P(StationaryByMethod, TandemLineAgreesWithGthElimination) {
     // 3 ranks to 1e-12 follows from each run's agreement with it.
     const auto chain = testing_support::tandem(24, 30, 1.0, 1.3, 1.1);
     const auto path = write(chain, "tandem.h5");
-    const auto pi = gather(solve(path, GetParam(), 1e-14));
+    const auto pi = gather(solve(path, GetParam(), 1e-12));
     solve::LocalRows rows{solve::TimeModel::continuous,
                           chain.states,
                           chain.rows,
@@ -123,7 +123,7 @@ TEST_F(ErlangLoss, BlockingMatchesThePublishedTableRowForTenServers) {
     const double erlangs = 4.46;
     const auto path =
         write(testing_support::birth_death(servers, servers, erlangs, 1.0), "erlang.h5");
-    const auto pi = gather(solve(path, "auto", 1e-13));
+    const auto pi = gather(solve(path, "auto", 1e-12));
     EXPECT_NEAR(pi.back(), 0.01, 1e-4);
     // And exactly against the formula's recursion.
     EXPECT_NEAR(pi.back(), testing_support::erlang_b(servers, erlangs), 1e-13);
@@ -142,12 +142,12 @@ TEST_F(Partitions, RanksWithoutRowsStillTakePartAndGiveTheSameAnswer) {
     const std::uint64_t begin = std::min<std::uint64_t>(rank * per, n);
     const std::uint64_t end = rank == size - 1 ? n : (rank == size - 2 ? n : begin + per);
     const RowRange rows = rank == size - 1 ? RowRange{n, n} : RowRange{begin, end};
-    const auto balanced = gather(solve(path, "linear", 1e-14));
-    const auto report = solve(path, "linear", 1e-14, rows);
+    const auto balanced = gather(solve(path, "linear", 1e-12));
+    const auto report = solve(path, "linear", 1e-12, rows);
     const auto skewed = gather(report);
     EXPECT_EQ(report.rows, rows);
     EXPECT_LT(max_abs_difference(balanced, skewed), 1e-12);
-    const auto eigen = gather(solve(path, "eigen", 1e-14, rows));
+    const auto eigen = gather(solve(path, "eigen", 1e-12, rows));
     EXPECT_LT(max_abs_difference(balanced, eigen), 1e-12);
 }
 
@@ -159,7 +159,7 @@ TEST_F(Partitions, FirstRankWithoutRowsWorksToo) {
     const std::uint64_t n = chain.states;
     const RowRange rows =
         rank == 0 ? RowRange{0, 0} : RowRange{(rank - 1) * n / (size - 1), rank * n / (size - 1)};
-    const auto pi = gather(solve(path, "auto", 1e-13, rows));
+    const auto pi = gather(solve(path, "auto", 1e-12, rows));
     EXPECT_LT(max_abs_difference(pi, testing_support::mmck_closed_form(2, 40, 1.5, 1.0)), 1e-12);
 }
 
@@ -176,7 +176,7 @@ TEST_F(Truncation, MassAtTheUpperBoundOfAnMM1KIsTheClosedFormAndWarnsOnlyWhenLar
     for (const auto& [K, rho, warn] : {std::tuple{12, 0.8, true}, std::tuple{80, 0.5, false}}) {
         const auto path =
             write(testing_support::birth_death(1, K, rho, 1.0), "cut" + std::to_string(K) + ".h5");
-        const auto report = solve(path, "auto", 1e-13);
+        const auto report = solve(path, "auto", 1e-12);
         const double expected = (1 - rho) * std::pow(rho, K) / (1 - std::pow(rho, K + 1));
         ASSERT_EQ(report.truncation.size(), 2u); // lower and upper bound of n
         const auto& lower = report.truncation[0];
@@ -205,7 +205,7 @@ TEST_F(TinyChains, ThreeStateCycleSolvesOnEveryRankCount) {
     std::vector<double> w{2, 1, 1, 2, 2, 1};
     const auto path = write(io::chain_from_triples(io::ChainKind::ctmc, 3, s, t, w), "cyc3.h5");
     for (const char* method : {"auto", "linear"}) {
-        const auto pi = gather(solve(path, method, 1e-13));
+        const auto pi = gather(solve(path, method, 1e-12));
         EXPECT_LT(max_abs_difference(pi, {1.0 / 3, 1.0 / 3, 1.0 / 3}), 1e-13) << method;
     }
 }
