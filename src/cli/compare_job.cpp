@@ -76,7 +76,7 @@ std::optional<io::ChainKind> kind_for(MPI_Comm comm, const std::string& path,
     io::ChainKind kind = io::ChainKind::ctmc;
     agree_on_local_work(comm, [&] {
         if (comm_rank(comm) == 0)
-            kind = matrix_market_kind(path);
+            kind = matrix_market_kind(path, request.transposed);
     });
     int k = kind == io::ChainKind::ctmc ? 0 : 1;
     MPI_Bcast(&k, 1, MPI_INT, 0, comm);
@@ -209,7 +209,8 @@ CompareReport run_compare(MPI_Comm comm, const CompareRequest& request) {
 
     for (std::size_t c = 0; c < request.chains.size(); ++c) {
         const std::string& path = request.chains[c];
-        LoadedChain loaded = load_any_chain(path, comm, kinds[c], request.validation);
+        LoadedChain loaded =
+            load_any_chain(path, comm, kinds[c], request.validation, request.transposed);
         const io::Chain& chain = loaded.chain;
         CompareChain info;
         info.path = path;
