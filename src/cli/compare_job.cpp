@@ -216,11 +216,16 @@ CompareReport run_compare(MPI_Comm comm, const CompareRequest& request) {
         info.path = path;
         info.kind = chain.kind;
         info.kind_detected = detected[c];
+        info.transposed = request.transposed && is_matrix_market(path);
         info.states = chain.states;
         info.transitions = chain.transitions;
         progress.note(fmt::format("{}: {} {} states, {} transitions{}", path,
                                   io::to_string(chain.kind), chain.states, chain.transitions,
-                                  info.kind_detected ? " (kind told from the row sums)" : ""));
+                                  info.kind_detected
+                                      ? (info.transposed ? " (kind told from the column sums)"
+                                                         : " (kind told from the row sums)")
+                                  : info.transposed ? " (read transposed)"
+                                                    : ""));
         const solve::LocalRows rows = local_rows_of(chain);
         info.residual_definition = solve::residual_definition(rows.time);
         const analysis::Structure structure = analysis::analyse(comm, rows);

@@ -55,6 +55,7 @@ struct CompareChain {
     std::string path;
     io::ChainKind kind = io::ChainKind::ctmc;
     bool kind_detected = false; // Matrix Market without --kind
+    bool transposed = false;    // Matrix Market read with columns as source states
     std::uint64_t states = 0, transitions = 0;
     std::string structure;           // one-line verdict of the analysis
     bool solvable = false;           // a unique stationary distribution exists
