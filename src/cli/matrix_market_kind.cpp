@@ -132,7 +132,8 @@ io::ChainKind matrix_market_kind(const std::string& path, bool transposed) {
                                                  line)
                                    : "");
     throw InputError(fmt::format(
-        "{}: {} {} (state {} counting from 0): diagonal {:.9g}, other entries summing to {:.9g}: "
+        "{}: {} {} (state {} counting from 0): diagonal {:.9g} while the other entries sum to "
+        "{:.9g}: "
         "with {}s as source states the file is neither a ctmc generator (every {} sums to 0, "
         "diagonal negative) nor a dtmc (every {} sums to 1){}",
         path, line, r + 1, r, sources.diagonal[r], sources.sum[r] - sources.diagonal[r], line, line,
