@@ -455,16 +455,114 @@ class Scanner {
                                  path, row + 1, column + 1));
 }
 
+// The words for the file's two indices as read: which one names the source state.
+struct Orientation {
+    const char* sources;
+    const char* other;
+};
+
+Orientation orientation_of(const MatrixMarketReading& reading) {
+    return reading.transposed ? Orientation{"column", "row"} : Orientation{"row", "column"};
+}
+
+struct GivenDiagonal {
+    std::uint64_t state = 0;
+    double value = 0;
+};
+
+double weight_out_of(const Chain& chain, std::uint64_t state) {
+    double total = 0;
+    for (auto k = chain.offsets[state]; k < chain.offsets[state + 1]; ++k)
+        total += chain.weights[k];
+    return total;
+}
+
+// Each state's sum as it would be had the file been read the other way round.
+// Only on the error path, so that a good file costs no second array.
+std::vector<double> weight_into(const Chain& chain) {
+    std::vector<double> total(chain.states, 0.0);
+    for (std::size_t k = 0; k < chain.targets.size(); ++k)
+        total[chain.targets[k]] += chain.weights[k];
+    return total;
+}
+
+bool balances(double diagonal, double rates, double tolerance) {
+    return std::abs(diagonal + rates) <= tolerance * std::max(std::abs(diagonal), rates);
+}
+
+// The diagonal a file gives is the only thing that shows which index of a
+// generator is the source: read the wrong way round, Q^T is a valid set of rates
+// of another chain, and solving it gives the mirror-image answer.
+void check_generator_diagonal(const std::string& path, const Chain& chain,
+                              const std::vector<GivenDiagonal>& diagonals,
+                              const MatrixMarketReading& reading) {
+    const double tolerance = reading.row_sum_tolerance;
+    const auto bad = std::find_if(diagonals.begin(), diagonals.end(), [&](const GivenDiagonal& d) {
+        return !balances(d.value, weight_out_of(chain, d.state), tolerance);
+    });
+    if (bad == diagonals.end())
+        return;
+    const std::vector<double> into = weight_into(chain);
+    const bool other_way_fits =
+        std::all_of(diagonals.begin(), diagonals.end(), [&](const GivenDiagonal& d) {
+            return balances(d.value, into[d.state], tolerance);
+        });
+    const Orientation o = orientation_of(reading);
+    std::string verdict;
+    if (!other_way_fits)
+        verdict = fmt::format("; the {}s do not balance their diagonals either, so the file is "
+                              "not a generator read either way round",
+                              o.other);
+    else if (!reading.transposed)
+        verdict = "; every column does balance its diagonal, so the file holds Q^T (columns as "
+                  "source states): give --transposed to read it so";
+    else
+        verdict = "; every row does balance its diagonal, so the file holds Q with rows as source "
+                  "states: leave out --transposed";
+    throw InputError(fmt::format(
+        "{}: {} {} (state {} counting from 0): diagonal {}, but the {}'s other entries sum to "
+        "{}; a generator's diagonal is minus that sum (relative tolerance {}, --row-sum-tol){}",
+        path, o.sources, bad->state + 1, bad->state, fmt_double(bad->value), o.sources,
+        fmt_double(weight_out_of(chain, bad->state)), fmt_double(tolerance), verdict));
+}
+
+// A transition matrix stored as P^T has rows that do not sum to 1, which the
+// validator refuses without saying why (or, with --renormalize, rescales into
+// another chain). When every column sums to 1 instead, the file says which way
+// round it is; otherwise the rows are the validator's to judge.
+void check_stochastic_orientation(const std::string& path, const Chain& chain,
+                                  const MatrixMarketReading& reading) {
+    const double tolerance = reading.row_sum_tolerance;
+    std::uint64_t bad = 0;
+    while (bad < chain.states && std::abs(weight_out_of(chain, bad) - 1.0) <= tolerance)
+        ++bad;
+    if (bad == chain.states)
+        return;
+    const std::vector<double> into = weight_into(chain);
+    if (!std::all_of(into.begin(), into.end(),
+                     [&](double total) { return std::abs(total - 1.0) <= tolerance; }))
+        return;
+    const Orientation o = orientation_of(reading);
+    throw InputError(fmt::format(
+        "{}: {} {} (state {} counting from 0): probabilities sum to {}, not 1, while {} {} sums "
+        "to {} and every {} sums to 1 (tolerance {}, --row-sum-tol), so the file holds {}",
+        path, o.sources, bad + 1, bad, fmt_double(weight_out_of(chain, bad)), o.other, bad + 1,
+        fmt_double(into[bad]), o.other, fmt_double(tolerance),
+        reading.transposed ? "P with rows as source states: leave out --transposed"
+                           : "P^T (columns as source states): give --transposed to read it so"));
+}
+
 } // namespace
 
-Chain read_matrix_market(const std::string& path, ChainKind kind) {
+Chain read_matrix_market(const std::string& path, ChainKind kind,
+                         const MatrixMarketReading& reading) {
     Scanner scan(path);
     const SizeLine size = scan.read_header();
     const bool ctmc = kind == ChainKind::ctmc;
 
     std::vector<std::uint64_t> sources, targets;
     std::vector<double> weights;
-    std::vector<std::uint64_t> diagonal_rows; // ctmc: to spot a diagonal given twice
+    std::vector<GivenDiagonal> diagonals; // ctmc
     const auto room =
         scan.file_bytes() ? *scan.file_bytes() / shortest_entry_line + 1 : unknown_size_reservation;
     const auto reserve = std::min(size.entries, room);
@@ -479,36 +577,48 @@ Chain read_matrix_market(const std::string& path, ChainKind kind) {
                                           "is {}, but a generator's diagonal is minus the state's "
                                           "total rate, so it must be <= 0",
                                           e.row + 1, e.column + 1, fmt_double(e.value)));
-            diagonal_rows.push_back(e.row);
+            diagonals.push_back({e.row, e.value});
             return;
         }
+        const auto source = reading.transposed ? e.column : e.row;
+        const auto target = reading.transposed ? e.row : e.column;
         if (e.value < 0)
             scan.fail(at, ctmc ? fmt::format("negative rate {} from state {} to state {}: the "
                                              "off-diagonal entries of a ctmc generator are rates "
                                              ">= 0",
-                                             fmt_double(e.value), e.row + 1, e.column + 1)
+                                             fmt_double(e.value), source + 1, target + 1)
                                : fmt::format("negative probability {} from state {} to state {}: "
                                              "dtmc entries are probabilities >= 0 (is this a ctmc "
                                              "generator?)",
-                                             fmt_double(e.value), e.row + 1, e.column + 1));
-        sources.push_back(e.row);
-        targets.push_back(e.column);
+                                             fmt_double(e.value), source + 1, target + 1));
+        sources.push_back(source);
+        targets.push_back(target);
         weights.push_back(e.value);
     });
 
-    std::sort(diagonal_rows.begin(), diagonal_rows.end());
-    if (const auto d = std::adjacent_find(diagonal_rows.begin(), diagonal_rows.end());
-        d != diagonal_rows.end())
-        report_duplicate(path, *d, *d);
+    std::sort(diagonals.begin(), diagonals.end(),
+              [](const GivenDiagonal& a, const GivenDiagonal& b) { return a.state < b.state; });
+    if (const auto d = std::adjacent_find(
+            diagonals.begin(), diagonals.end(),
+            [](const GivenDiagonal& a, const GivenDiagonal& b) { return a.state == b.state; });
+        d != diagonals.end())
+        report_duplicate(path, d->state, d->state);
 
     Chain chain = chain_from_triples(kind, size.rows, std::move(sources), std::move(targets),
                                      std::move(weights));
     for (std::uint64_t r = 0; r < chain.states; ++r) {
         const auto b = chain.targets.begin() + static_cast<std::ptrdiff_t>(chain.offsets[r]);
         const auto e = chain.targets.begin() + static_cast<std::ptrdiff_t>(chain.offsets[r + 1]);
-        if (const auto d = std::adjacent_find(b, e); d != e)
+        if (const auto d = std::adjacent_find(b, e); d != e) {
+            if (reading.transposed)
+                report_duplicate(path, *d, r);
             report_duplicate(path, r, *d);
+        }
     }
+    if (ctmc)
+        check_generator_diagonal(path, chain, diagonals, reading);
+    else
+        check_stochastic_orientation(path, chain, reading);
     return chain;
 }
 

@@ -15,17 +15,6 @@ namespace longrun::cli {
 
 namespace {
 
-// The validator speaks of chain-file datasets and 0-based rows; a Matrix Market
-// file has neither and counts rows from 1.
-Error in_matrix_market_terms(const LocalFault& fault, const std::string& file) {
-    const std::string chain_terms = ": row " + std::to_string(fault.row) + ": ";
-    std::string detail = fault.message;
-    if (const auto at = detail.find(chain_terms); at != std::string::npos)
-        detail.erase(0, at + chain_terms.size());
-    return Error(fault.code, fmt::format("{}: row {} (state {} counting from 0): {}", file,
-                                         fault.row + 1, fault.row, detail));
-}
-
 io::Chain rows_of(const io::Chain& whole, RowRange rows) {
     io::Chain slice;
     slice.kind = whole.kind;
@@ -45,13 +34,15 @@ io::Chain rows_of(const io::Chain& whole, RowRange rows) {
 
 LoadedChain load_matrix_market(const std::string& path, MPI_Comm comm,
                                std::optional<io::ChainKind> kind,
-                               const io::ValidationOptions& options) {
+                               const io::ValidationOptions& options, bool transposed) {
     LoadedChain out;
     io::Chain whole;
     agree_on_local_work(comm, [&] {
-        whole = io::read_matrix_market(path, kind ? *kind : matrix_market_kind(path));
+        whole = io::read_matrix_market(
+            path, kind ? *kind : matrix_market_kind(path, transposed),
+            {.transposed = transposed, .row_sum_tolerance = options.row_sum_tolerance});
         if (auto fault = io::validate_slice(whole, path, options, out.validation))
-            throw in_matrix_market_terms(*fault, path);
+            throw in_matrix_market_terms(*fault, path, transposed);
     });
     whole.transitions = whole.targets.size();
     out.header.path = path;
@@ -70,6 +61,20 @@ LoadedChain load_matrix_market(const std::string& path, MPI_Comm comm,
 
 } // namespace
 
+// The validator speaks of chain-file datasets and 0-based rows; someone holding
+// a Matrix Market file has neither, and counts its lines from 1: say "row 134"
+// for the file's row 134 (its column, when the file is read transposed), not
+// "/chain/weights: row 133".
+Error in_matrix_market_terms(const LocalFault& fault, const std::string& file, bool transposed) {
+    const std::string chain_terms = ": row " + std::to_string(fault.row) + ": ";
+    std::string detail = fault.message;
+    if (const auto at = detail.find(chain_terms); at != std::string::npos)
+        detail.erase(0, at + chain_terms.size());
+    return Error(fault.code,
+                 fmt::format("{}: {} {} (state {} counting from 0): {}", file,
+                             transposed ? "column" : "row", fault.row + 1, fault.row, detail));
+}
+
 bool is_matrix_market(const std::string& path) {
     std::ifstream in(path, std::ios::binary);
     char head[14] = {};
@@ -79,10 +84,10 @@ bool is_matrix_market(const std::string& path) {
 }
 
 LoadedChain load_any_chain(const std::string& path, MPI_Comm comm,
-                           std::optional<io::ChainKind> kind,
-                           const io::ValidationOptions& options) {
+                           std::optional<io::ChainKind> kind, const io::ValidationOptions& options,
+                           bool transposed) {
     if (is_matrix_market(path))
-        return load_matrix_market(path, comm, kind, options);
+        return load_matrix_market(path, comm, kind, options, transposed);
     return load_chain(path, comm, options);
 }
 

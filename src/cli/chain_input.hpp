@@ -5,6 +5,8 @@
 
 #include "load.hpp"
 
+#include "io/mpi_agree.hpp"
+
 #include <optional>
 #include <string>
 
@@ -13,10 +15,16 @@ namespace longrun::cli {
 // By content ("%%MatrixMarket" banner) or by the .mtx extension.
 bool is_matrix_market(const std::string& path);
 
-// Collective. `kind` is for Matrix Market files only (chain files say their
-// kind); without it the kind is detected. Errors are agreed over the ranks and
-// name the file and row, counting Matrix Market rows from 1.
+// A validation fault of a chain read from the Matrix Market file `file`, told
+// in the file's terms: its line (row, or column when transposed), counted from 1.
+Error in_matrix_market_terms(const LocalFault& fault, const std::string& file, bool transposed);
+
+// Collective. `kind` and `transposed` (the file's columns are the source
+// states) are for Matrix Market files only (chain files say their kind);
+// without `kind` it is detected. Errors are agreed over the ranks and name the
+// file and row, counting Matrix Market rows from 1.
 LoadedChain load_any_chain(const std::string& path, MPI_Comm comm,
-                           std::optional<io::ChainKind> kind, const io::ValidationOptions& options);
+                           std::optional<io::ChainKind> kind, const io::ValidationOptions& options,
+                           bool transposed = false);
 
 } // namespace longrun::cli

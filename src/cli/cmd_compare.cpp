@@ -131,7 +131,8 @@ Action add_compare(CLI::App& app) {
         "read whole by every rank (convert large ones to a chain file first). A Matrix Market\n"
         "file's kind is told from its rows: rows summing to 0 with a negative diagonal are a\n"
         "ctmc generator, rows summing to 1 a dtmc; anything else is refused (exit 2) unless\n"
-        "--kind says.");
+        "--kind says. Files that store the transposed matrix (column j holds the transitions\n"
+        "out of state j) are read with --transposed.");
     sub->footer("Exit codes: 0 done (also when some method did not converge), 1 usage error,\n"
                 "2 bad input, 6 output not written.");
     sub->add_option("chains", o->request.chains, "chain files (.h5) and Matrix Market files (.mtx)")
@@ -147,6 +148,10 @@ Action add_compare(CLI::App& app) {
                     "ctmc or dtmc, for Matrix Market files (chain files say their kind); "
                     "without it the kind is told from the row sums")
         ->check(CLI::IsMember({"ctmc", "dtmc"}));
+    sub->add_flag("--transposed", o->request.transposed,
+                  "the Matrix Market files hold the transposed matrix (P^T or Q^T): column j "
+                  "lists the transitions out of state j, so columns, not rows, sum to 1 (or 0); "
+                  "chain files are not affected");
     sub->add_option("--json", o->json, "write the comparison as JSON to FILE, or '-' for stdout")
         ->type_name("FILE|-");
     sub->add_option("--csv", o->csv,

@@ -1,4 +1,5 @@
 // `longrun convert`: Matrix Market <-> chain file, validated on the way in.
+#include "chain_input.hpp"
 #include "commands.hpp"
 #include "paths.hpp"
 
@@ -18,6 +19,7 @@ namespace {
 
 struct ConvertOptions {
     std::string input, output, kind;
+    bool transposed = false;
     io::ValidationOptions validation;
     std::uint64_t chunk = 0;
     int deflate = 0;
@@ -30,18 +32,6 @@ bool looks_like_matrix_market(const std::string& path) {
     return std::string(head, static_cast<std::size_t>(in.gcount())) == "%%MatrixMarket";
 }
 
-// The validator speaks of a chain file: its datasets and 0-based rows. Someone
-// holding a Matrix Market file has neither, and counts its rows from 1: say
-// "row 134" for the file's row 134, not "/chain/weights: row 133".
-Error in_matrix_market_terms(const LocalFault& fault, const std::string& file) {
-    const std::string chain_terms = ": row " + std::to_string(fault.row) + ": ";
-    std::string detail = fault.message;
-    if (const auto at = detail.find(chain_terms); at != std::string::npos)
-        detail.erase(0, at + chain_terms.size());
-    return Error(fault.code, fmt::format("{}: row {} (state {} counting from 0): {}", file,
-                                         fault.row + 1, fault.row, detail));
-}
-
 int convert(MPI_Comm comm, const ConvertOptions& o) {
     require_distinct(o.input, o.output);
     require_writable_folder(o.output);
@@ -52,6 +42,9 @@ int convert(MPI_Comm comm, const ConvertOptions& o) {
     if (from_mtx && to_mtx)
         throw UsageError("both files are Matrix Market; convert goes between Matrix Market and "
                          "a chain file (.h5)");
+    if (!from_mtx && o.transposed)
+        throw UsageError("--transposed is only for Matrix Market input; a chain file's rows are "
+                         "always its source states");
     if (from_mtx && o.kind.empty())
         throw UsageError("a Matrix Market file does not say whether it holds rates or "
                          "probabilities: give --kind ctmc or --kind dtmc");
@@ -61,9 +54,11 @@ int convert(MPI_Comm comm, const ConvertOptions& o) {
             return;
         io::ValidationReport report;
         if (from_mtx) {
-            io::Chain chain = io::read_matrix_market(o.input, *io::parse_kind(o.kind));
+            io::Chain chain = io::read_matrix_market(
+                o.input, *io::parse_kind(o.kind),
+                {.transposed = o.transposed, .row_sum_tolerance = o.validation.row_sum_tolerance});
             if (auto fault = io::validate_slice(chain, o.input, o.validation, report))
-                throw in_matrix_market_terms(*fault, o.input);
+                throw in_matrix_market_terms(*fault, o.input, o.transposed);
             io::write_chain_file(o.output, chain, {o.chunk, o.deflate});
             summary = fmt::format("wrote {}: {} chain, {} states, {} transitions", o.output,
                                   io::to_string(chain.kind), chain.states, chain.transitions);
@@ -103,7 +98,9 @@ Action add_convert(CLI::App& app) {
         "  longrun convert chain.h5 back.mtx                 (a ctmc is written as Q with its\n"
         "                                                    diagonal)\n"
         "The input is validated; a dtmc whose rows do not sum to 1 is refused unless\n"
-        "--renormalize is given.");
+        "--renormalize is given, and so is a generator whose diagonal is not minus its row's\n"
+        "rates. A file that stores the transposed matrix (column j holds the transitions out\n"
+        "of state j) is read with --transposed.");
     // Existence is the reader's check (exit 2), as for `solve`.
     sub->footer("Exit codes: 0 done, 1 usage error, 2 bad input, 3 no unique stationary\n"
                 "distribution, 4 no certified answer within tolerance, 6 output not written.");
@@ -112,6 +109,9 @@ Action add_convert(CLI::App& app) {
         ->required();
     sub->add_option("--kind", o->kind, "ctmc (rates) or dtmc (probabilities), for .mtx input")
         ->check(CLI::IsMember({"ctmc", "dtmc"}));
+    sub->add_flag("--transposed", o->transposed,
+                  "the .mtx input holds the transposed matrix (P^T or Q^T): column j lists the "
+                  "transitions out of state j, so columns, not rows, sum to 1 (or 0)");
     add_validation_options(sub, o->validation);
     sub->add_option("--chunk", o->chunk, "HDF5 chunk length in elements (0: contiguous)")
         ->default_val(0);

@@ -77,7 +77,7 @@ std::optional<io::ChainKind> kind_for(MPI_Comm comm, const std::string& path,
     io::ChainKind kind = io::ChainKind::ctmc;
     agree_on_local_work(comm, [&] {
         if (comm_rank(comm) == 0)
-            kind = matrix_market_kind(path);
+            kind = matrix_market_kind(path, request.transposed);
     });
     int k = kind == io::ChainKind::ctmc ? 0 : 1;
     MPI_Bcast(&k, 1, MPI_INT, 0, comm);
@@ -213,17 +213,23 @@ CompareReport run_compare(MPI_Comm comm, const CompareRequest& request) {
 
     for (std::size_t c = 0; c < request.chains.size(); ++c) {
         const std::string& path = request.chains[c];
-        LoadedChain loaded = load_any_chain(path, comm, kinds[c], request.validation);
+        LoadedChain loaded =
+            load_any_chain(path, comm, kinds[c], request.validation, request.transposed);
         const io::Chain& chain = loaded.chain;
         CompareChain info;
         info.path = path;
         info.kind = chain.kind;
         info.kind_detected = detected[c];
+        info.transposed = request.transposed && is_matrix_market(path);
         info.states = chain.states;
         info.transitions = chain.transitions;
         progress.note(fmt::format("{}: {} {} states, {} transitions{}", path,
                                   io::to_string(chain.kind), chain.states, chain.transitions,
-                                  info.kind_detected ? " (kind told from the row sums)" : ""));
+                                  info.kind_detected
+                                      ? (info.transposed ? " (kind told from the column sums)"
+                                                         : " (kind told from the row sums)")
+                                  : info.transposed ? " (read transposed)"
+                                                    : ""));
         const solve::LocalRows rows = local_rows_of(chain);
         info.residual_definition = solve::residual_definition(rows.time);
         const analysis::Structure structure = analysis::analyse(comm, rows);

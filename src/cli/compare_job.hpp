@@ -21,6 +21,7 @@ struct CompareRequest {
     std::vector<std::string> methods; // names from solve::method_table(), each run alone
     double tolerance = 1e-10;
     std::optional<io::ChainKind> kind; // Matrix Market files only; detected when absent
+    bool transposed = false;           // Matrix Market files hold P^T or Q^T (columns = sources)
     io::ValidationOptions validation;
     solve::LinearPreconditioner preconditioner = solve::LinearPreconditioner::amg;
     // Runs are not started once this many seconds have passed since the start
@@ -55,6 +56,7 @@ struct CompareChain {
     std::string path;
     io::ChainKind kind = io::ChainKind::ctmc;
     bool kind_detected = false; // Matrix Market without --kind
+    bool transposed = false;    // Matrix Market read with columns as source states
     std::uint64_t states = 0, transitions = 0;
     std::string structure;           // one-line verdict of the analysis
     bool solvable = false;           // a unique stationary distribution exists

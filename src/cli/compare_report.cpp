@@ -51,9 +51,12 @@ std::string compare_text(const CompareReport& r) {
                                   "every method alone, {} rank(s)\n",
                                   r.tolerance, r.ranks);
     for (const auto& c : r.chains) {
-        out += fmt::format("\nchain        {}: {}{}, {} states, {} transitions\n", c.path,
-                           io::to_string(c.kind), c.kind_detected ? " (told from row sums)" : "",
-                           c.states, c.transitions);
+        out += fmt::format(
+            "\nchain        {}: {}{}, {} states, {} transitions\n", c.path, io::to_string(c.kind),
+            c.kind_detected ? (c.transposed ? " (told from column sums)" : " (told from row sums)")
+            : c.transposed  ? " (read transposed)"
+                            : "",
+            c.states, c.transitions);
         out += fmt::format("structure    {}\n", c.structure);
         if (c.solvable)
             out += fmt::format("product      one product with the matrix takes {:.3g} ms\n",
@@ -95,6 +98,7 @@ nlohmann::json compare_json(const CompareReport& r) {
         chains.push_back({{"path", c.path},
                           {"kind", io::to_string(c.kind)},
                           {"kind_detected", c.kind_detected},
+                          {"transposed", c.transposed},
                           {"states", c.states},
                           {"transitions", c.transitions},
                           {"structure", c.structure},

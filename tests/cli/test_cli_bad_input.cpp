@@ -12,6 +12,7 @@
 #include "io/chain.hpp"
 #include "io/error.hpp"
 
+#include <fmt/format.h>
 #include <gtest/gtest.h>
 #include <hdf5.h>
 
@@ -360,6 +361,127 @@ TEST_F(CliBadInput, ConvertMatrixMarketMisspeltBanner) {
 TEST_F(CliBadInput, ConvertMissingInput) {
     expect_refused({"convert", (dir_ / "absent.h5").string(), out_.string()}, dir_ / "absent.h5",
                    code(ExitCode::bad_input), {});
+}
+
+// --- Matrix Market read the wrong way round ---------------------------------
+
+struct MatrixEntry {
+    int row, column; // 1-based, as in the file
+    double value;
+};
+
+// The file of `entries`, or of their transpose (column j holds row j's entries).
+std::string matrix_market(int n, const std::vector<MatrixEntry>& entries, bool transposed) {
+    std::string text = "%%MatrixMarket matrix coordinate real general\n" + std::to_string(n) + " " +
+                       std::to_string(n) + " " + std::to_string(entries.size()) + "\n";
+    for (const auto& e : entries)
+        text += transposed ? fmt::format("{} {} {}\n", e.column, e.row, e.value)
+                           : fmt::format("{} {} {}\n", e.row, e.column, e.value);
+    return text;
+}
+
+// M/M/1/3 with arrival rate 1 and service rate 2, as the generator Q with its
+// diagonal. Stationary law p_k = (1 - r) r^k / (1 - r^4), r = 1/2, that is
+// (8, 4, 2, 1) / 15 (Kleinrock, Queueing Systems I, 1975, sec. 3.6).
+const std::vector<MatrixEntry> mm13 = {{1, 1, -1}, {1, 2, 1},  {2, 1, 2}, {2, 2, -3}, {2, 3, 1},
+                                       {3, 2, 2},  {3, 3, -3}, {3, 4, 1}, {4, 3, 2},  {4, 4, -2}};
+const std::vector<double> mm13_law = {8.0 / 15, 4.0 / 15, 2.0 / 15, 1.0 / 15};
+
+// A birth-death dtmc on 0..2: P = [[1/2, 1/2, 0], [1/4, 1/2, 1/4], [0, 1/2, 1/2]].
+// Detailed balance, pi_k p(k, k+1) = pi_(k+1) p(k+1, k), gives (1, 2, 1) / 4
+// (Kelly, Reversibility and Stochastic Networks, 1979, ch. 1).
+const std::vector<MatrixEntry> lazy_walk = {{1, 1, 0.5},  {1, 2, 0.5}, {2, 1, 0.25}, {2, 2, 0.5},
+                                            {2, 3, 0.25}, {3, 2, 0.5}, {3, 3, 0.5}};
+const std::vector<double> lazy_walk_law = {0.25, 0.5, 0.25};
+
+class CliTransposed : public CliFixture {
+  protected:
+    std::vector<std::string> compare_args(const fs::path& in,
+                                          const std::vector<std::string>& extra) const {
+        std::vector<std::string> args{"compare", in.string(), "--methods", "gth", "-q"};
+        args.insert(args.end(), extra.begin(), extra.end());
+        return args;
+    }
+
+    // convert IN --kind KIND --transposed, then solve: the law must be `law`.
+    void expect_read_transposed(const fs::path& in, const std::string& kind,
+                                const std::vector<double>& law) {
+        const auto chain = dir_ / "chain.h5";
+        const auto converted = run_command(
+            command({"convert", in.string(), chain.string(), "--kind", kind, "--transposed"}, 0));
+        ASSERT_EQ(converted.exit_code, 0) << converted.describe();
+        const auto pi = expect_solved(chain, law.size(), {"--method", "gth"});
+        ASSERT_EQ(pi.size(), law.size());
+        for (std::size_t k = 0; k < law.size(); ++k)
+            EXPECT_NEAR(pi[k], law[k], 1e-13) << "state " << k;
+    }
+
+    // compare IN --transposed: accepted, the kind told from the columns.
+    void expect_compared_transposed(const fs::path& in, const std::string& kind) {
+        const auto r = run_command(command(compare_args(in, {"--transposed", "--json", "-"}), 0));
+        EXPECT_EQ(r.exit_code, 0) << r.describe();
+        for (const auto* word : {"\"transposed\": true", "\"kind_detected\": true", "converged"})
+            EXPECT_NE(r.out.find(word), std::string::npos) << word << "\n" << r.describe();
+        EXPECT_NE(r.out.find("\"kind\": \"" + kind + "\""), std::string::npos) << r.describe();
+    }
+};
+
+TEST_F(CliTransposed, GeneratorStoredAsQTransposedIsRefused) {
+    const auto in = write_text("mm13t.mtx", matrix_market(4, mm13, true));
+    const std::vector<std::string> row_and_sums = {"row 1 ", "diagonal -1", "sum to 2",
+                                                   "--transposed"};
+    expect_refused({"convert", in.string(), out_.string(), "--kind", "ctmc"}, in,
+                   code(ExitCode::bad_input), row_and_sums);
+    expect_refused(compare_args(in, {"--kind", "ctmc"}), in, code(ExitCode::bad_input),
+                   row_and_sums);
+    // Without --kind, compare tells the kind from the file: the columns fit.
+    expect_refused(compare_args(in, {}), in, code(ExitCode::bad_input),
+                   {"row 1 ", "Q^T", "--transposed"});
+}
+
+TEST_F(CliTransposed, GeneratorStoredAsQTransposedReadWithTransposed) {
+    const auto in = write_text("mm13t.mtx", matrix_market(4, mm13, true));
+    expect_read_transposed(in, "ctmc", mm13_law);
+    expect_compared_transposed(in, "ctmc");
+}
+
+// --renormalize would otherwise rescale P^T's rows into another chain.
+TEST_F(CliTransposed, TransitionMatrixStoredAsPTransposedIsRefused) {
+    const auto in = write_text("walkt.mtx", matrix_market(3, lazy_walk, true));
+    const std::vector<std::string> row_and_sums = {"row 1 ", "sum to 0.75", "column 1 sums to 1",
+                                                   "--transposed"};
+    for (const auto* renormalize : {"--row-sum-tol=1e-8", "--renormalize"})
+        expect_refused({"convert", in.string(), out_.string(), "--kind", "dtmc", renormalize}, in,
+                       code(ExitCode::bad_input), row_and_sums);
+    expect_refused(compare_args(in, {}), in, code(ExitCode::bad_input),
+                   {"row 1 ", "P^T", "--transposed"});
+}
+
+TEST_F(CliTransposed, TransitionMatrixStoredAsPTransposedReadWithTransposed) {
+    const auto in = write_text("walkt.mtx", matrix_market(3, lazy_walk, true));
+    expect_read_transposed(in, "dtmc", lazy_walk_law);
+    expect_compared_transposed(in, "dtmc");
+}
+
+// Row 2's diagonal is -5 against rates 2 + 1, and no column balances either:
+// --transposed would not help, and is not offered.
+TEST_F(CliTransposed, WrongDiagonalIsRefusedWithoutOfferingTransposed) {
+    auto entries = mm13;
+    entries[3].value = -5;
+    const auto in = write_text("wrong.mtx", matrix_market(4, entries, false));
+    for (const auto& args :
+         {std::vector<std::string>{"convert", in.string(), out_.string(), "--kind", "ctmc"},
+          compare_args(in, {"--kind", "ctmc"}), compare_args(in, {})}) {
+        const auto r = expect_refused(args, in, code(ExitCode::bad_input),
+                                      {"row 2 ", "diagonal -5", "sum to 3"});
+        EXPECT_EQ(r.err.find("--transposed"), std::string::npos) << r.describe();
+    }
+}
+
+TEST_F(CliTransposed, TransposedIsOnlyForMatrixMarketInput) {
+    const auto chain = write_chain("six.h5", six_state_dtmc());
+    expect_refused({"convert", chain.string(), out_.string(), "--transposed"}, chain,
+                   code(ExitCode::usage), {"--transposed", "Matrix Market"}, 0, {}, false);
 }
 
 // --- two ranks: one agreed line, one exit code, no hang ---------------------

@@ -33,8 +33,8 @@ Usage: compare.py write OUT_DIR FAMILY_BINARY
          (a folder no one can create files in, root included): exit 6 and no
          file under the final names; --json - with --csv -: exit 1.
   help   `compare --help`: exit 0, nothing on stderr; examples for one rank and
-         mpirun, every option, the meaning of the columns, which memory figure is
-         reported, and the exit codes.
+         mpirun, every option (--transposed with what it means), the meaning of
+         the columns, which memory figure is reported, and the exit codes.
 """
 
 import csv
@@ -269,7 +269,9 @@ def bad_mode(folder):
 
 
 HELP = [r"longrun compare \S+\.h5 \S+\.mtx", r"mpirun -n \d+ longrun compare", r"--methods",
-        r"--tol", r"--json", r"--csv", r"--plot", r"--kind", r"--max-seconds", r"prod-equiv",
+        r"--tol", r"--json", r"--csv", r"--plot", r"--kind",
+        r"--transposed\b.*column j lists the\s+transitions out of state j", r"--max-seconds",
+        r"prod-equiv",
         r"peak .*after the run", r"skipped", r"Exit codes: 0 done", r"\b1 usage error",
         r"\b2 bad input", r"\b6 output not written"]
 

@@ -10,7 +10,8 @@ Usage: help_text.py main|solve|convert
            (1: unknown option, 2: missing input file)
   solve    every method, checkpoints and resuming, the certificate, --tol, --json,
            examples for one rank and for mpirun
-  convert  both directions with examples, --kind and --renormalize
+  convert  both directions with examples, --kind, --renormalize and --transposed
+           (what it means: columns as source states)
 """
 
 import re
@@ -54,6 +55,7 @@ EXPECTED = {
         r"^\s*longrun convert \S+\.h5 \S+\.mtx",
         r"--kind",
         r"--renormalize",
+        r"--transposed\b.*column j lists the\s+transitions out of state j",
         r"Matrix Market",
     ],
 }

@@ -43,10 +43,10 @@ void write_scratch(const std::uint8_t* data, std::size_t size) {
     }
 }
 
-void read_and_validate(const std::string& path, longrun::io::ChainKind kind) {
+void read_and_validate(const std::string& path, longrun::io::ChainKind kind, bool transposed) {
     longrun::io::Chain chain;
     try {
-        chain = longrun::io::read_matrix_market(path, kind);
+        chain = longrun::io::read_matrix_market(path, kind, {.transposed = transposed});
     } catch (const longrun::InputError&) {
         return;
     }
@@ -65,6 +65,7 @@ void read_and_validate(const std::string& path, longrun::io::ChainKind kind) {
 extern "C" int LLVMFuzzerTestOneInput(const std::uint8_t* data, std::size_t size) {
     write_scratch(data, size);
     for (const auto kind : {longrun::io::ChainKind::ctmc, longrun::io::ChainKind::dtmc})
-        read_and_validate(scratch_path(), kind);
+        for (const bool transposed : {false, true})
+            read_and_validate(scratch_path(), kind, transposed);
     return 0;
 }

@@ -293,6 +293,134 @@ TEST_F(MatrixMarketTest, WritingIntoAMissingFolderThrowsOutputError) {
     EXPECT_FALSE(fs::exists(path));
 }
 
+// --- which index is the source ---------------------------------------------
+
+using longrun::io::MatrixMarketReading;
+
+// Q of a birth-death chain on 0..2 (births at rate 1, deaths at rate 2):
+//   [[-1, 1, 0], [2, -3, 1], [0, 2, -2]]
+// stored as Q^T: file row i holds column i of Q, so row 1 reads diagonal -1
+// with 2 beside it, and every column sums to 0.
+const std::string generator_transposed = banner + "3 3 7\n"
+                                                  "1 1 -1\n"
+                                                  "1 2 2\n"
+                                                  "2 1 1\n"
+                                                  "2 2 -3\n"
+                                                  "2 3 2\n"
+                                                  "3 2 1\n"
+                                                  "3 3 -2\n";
+
+// The message from reading `path` as `kind`; empty when the file is accepted.
+std::string refusal(const std::string& path, ChainKind kind, MatrixMarketReading reading = {}) {
+    try {
+        (void)read_matrix_market(path, kind, reading);
+    } catch (const InputError& e) {
+        const std::string message = e.what();
+        EXPECT_EQ(message.find('\n'), std::string::npos) << message;
+        EXPECT_EQ(message.rfind(path + ": ", 0), 0u) << message;
+        return message;
+    }
+    ADD_FAILURE() << path << " was accepted";
+    return {};
+}
+
+void expect_mentions(const std::string& message, const std::vector<std::string>& words) {
+    for (const auto& w : words)
+        EXPECT_NE(message.find(w), std::string::npos) << "'" << w << "' in " << message;
+}
+
+TEST_F(MatrixMarketTest, TransposedGeneratorIsRefusedNamingRowSumsAndOption) {
+    const auto path = dir.write("qt.mtx", generator_transposed);
+    expect_mentions(refusal(path, ChainKind::ctmc),
+                    {"row 1 ", "diagonal -1", "sum to 2", "Q^T", "--transposed"});
+}
+
+TEST_F(MatrixMarketTest, TransposedGeneratorReadWithTransposedIsQ) {
+    const auto path = dir.write("qt.mtx", generator_transposed);
+    const Chain c = read_matrix_market(path, ChainKind::ctmc, {.transposed = true});
+    EXPECT_EQ(c.offsets, (std::vector<std::uint64_t>{0, 1, 3, 4}));
+    EXPECT_EQ(c.targets, (std::vector<std::uint64_t>{1, 0, 2, 1}));
+    EXPECT_EQ(c.weights, (std::vector<double>{1, 2, 1, 2}));
+}
+
+TEST_F(MatrixMarketTest, GeneratorReadWithTransposedIsRefusedSayingToLeaveItOut) {
+    const auto path = dir.write("q.mtx", banner + "2 2 4\n1 1 -2\n1 2 2\n2 1 3\n2 2 -3\n");
+    expect_mentions(refusal(path, ChainKind::ctmc, {.transposed = true}),
+                    {"column 1 ", "diagonal -2", "sum to 3", "leave out --transposed"});
+}
+
+// Neither orientation balances (row 2: diagonal -5 against rates 2 + 1;
+// column 1: -1 against 2 + 0): --transposed would not help, so it is not offered.
+TEST_F(MatrixMarketTest, WrongDiagonalIsRefusedWithoutOfferingTransposed) {
+    const auto path = dir.write("q.mtx", banner + "3 3 7\n"
+                                                  "1 1 -1\n"
+                                                  "1 2 1\n"
+                                                  "2 1 2\n"
+                                                  "2 2 -5\n"
+                                                  "2 3 1\n"
+                                                  "3 2 1\n"
+                                                  "3 3 -1\n");
+    const auto as_rows = refusal(path, ChainKind::ctmc);
+    expect_mentions(as_rows, {"row 2 ", "diagonal -5", "sum to 3"});
+    EXPECT_EQ(as_rows.find("--transposed"), std::string::npos) << as_rows;
+    const auto as_columns = refusal(path, ChainKind::ctmc, {.transposed = true});
+    expect_mentions(as_columns, {"column 1 ", "diagonal -1", "sum to 2"});
+    EXPECT_EQ(as_columns.find("--transposed"), std::string::npos) << as_columns;
+}
+
+// The balance is relative, under --row-sum-tol: a diagonal printed with six
+// significant digits (-0.666667 for rates 1/3 + 1/3) is off by 5e-7 of itself.
+TEST_F(MatrixMarketTest, DiagonalBalanceUsesTheRelativeRowSumTolerance) {
+    const auto path = dir.write("q.mtx", banner + "3 3 6\n"
+                                                  "1 1 -0.666667\n"
+                                                  "1 2 0.3333333333333333\n"
+                                                  "1 3 0.3333333333333333\n"
+                                                  "2 1 1\n"
+                                                  "3 1 1e-300\n"
+                                                  "3 3 -1e-300\n");
+    expect_mentions(refusal(path, ChainKind::ctmc), {"row 1 ", "--row-sum-tol"});
+    const Chain c = read_matrix_market(path, ChainKind::ctmc, {.row_sum_tolerance = 1e-6});
+    EXPECT_EQ(c.transitions, 4u);
+}
+
+// P of a birth-death dtmc on 0..2, [[0.5, 0.5, 0], [0.25, 0.5, 0.25], [0, 0.5, 0.5]],
+// stored as P^T: row 1 of the file sums to 0.75, every column to 1.
+const std::string stochastic_transposed = banner + "3 3 7\n"
+                                                   "1 1 0.5\n"
+                                                   "1 2 0.25\n"
+                                                   "2 1 0.5\n"
+                                                   "2 2 0.5\n"
+                                                   "2 3 0.5\n"
+                                                   "3 2 0.25\n"
+                                                   "3 3 0.5\n";
+
+TEST_F(MatrixMarketTest, TransposedTransitionMatrixIsRefusedNamingRowSumsAndOption) {
+    const auto path = dir.write("pt.mtx", stochastic_transposed);
+    expect_mentions(refusal(path, ChainKind::dtmc),
+                    {"row 1 ", "sum to 0.75", "column 1 sums to 1", "P^T", "--transposed"});
+}
+
+TEST_F(MatrixMarketTest, TransposedTransitionMatrixReadWithTransposedIsP) {
+    const auto path = dir.write("pt.mtx", stochastic_transposed);
+    const Chain c = read_matrix_market(path, ChainKind::dtmc, {.transposed = true});
+    EXPECT_EQ(c.offsets, (std::vector<std::uint64_t>{0, 2, 5, 7}));
+    EXPECT_EQ(c.targets, (std::vector<std::uint64_t>{0, 1, 0, 1, 2, 1, 2}));
+    EXPECT_EQ(c.weights, (std::vector<double>{0.5, 0.5, 0.25, 0.5, 0.25, 0.5, 0.5}));
+}
+
+// Rows that are off without the columns fitting are the validator's to judge
+// (refused, or rescaled under --renormalize): the reader accepts them.
+TEST_F(MatrixMarketTest, RowsOffWithColumnsOffAreLeftToTheValidator) {
+    const auto path = dir.write("p.mtx", banner + "2 2 3\n1 1 0.5\n1 2 0.25\n2 1 1\n");
+    EXPECT_EQ(read_matrix_market(path, ChainKind::dtmc).transitions, 3u);
+}
+
+TEST_F(MatrixMarketTest, TransposedDuplicateNamesTheFileCoordinates) {
+    const auto path = dir.write("pt.mtx", banner + "2 2 3\n2 1 0.5\n1 2 1\n2 1 0.5\n");
+    expect_mentions(refusal(path, ChainKind::dtmc, {.transposed = true}),
+                    {"line 5", "duplicate entry (2, 1)", "line 3"});
+}
+
 TEST_F(MatrixMarketTest, MissingFileThrowsInputErrorNamingIt) {
     const auto path = (dir.path() / "absent.mtx").string();
     try {
