@@ -1,4 +1,5 @@
 #include "commands.hpp"
+#include "option_range.hpp"
 
 namespace longrun::cli {
 
@@ -8,7 +9,7 @@ void add_validation_options(CLI::App* sub, io::ValidationOptions& options) {
                   "the largest correction)");
     sub->add_option("--row-sum-tol", options.row_sum_tolerance, "allowed |row sum - 1| of a dtmc")
         ->default_val(1e-8)
-        ->check(CLI::PositiveNumber);
+        ->check(number_in(Interval::open_closed(0, 0.1)));
 }
 
 } // namespace longrun::cli
