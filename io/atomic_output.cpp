@@ -10,6 +10,7 @@
 #include <cstring>
 #include <filesystem>
 #include <random>
+#include <sys/stat.h>
 #include <unistd.h>
 
 namespace longrun::io {
@@ -25,13 +26,52 @@ std::string temporary_name_for(const std::string& final_path) {
     return (p.parent_path() / name).string();
 }
 
+std::string kind_of(mode_t mode) {
+    if (S_ISDIR(mode))
+        return "a folder";
+    if (S_ISCHR(mode) || S_ISBLK(mode))
+        return "a device";
+    if (S_ISFIFO(mode))
+        return "a named pipe (fifo)";
+    if (S_ISSOCK(mode))
+        return "a socket";
+    return "not a regular file";
+}
+
+// A link to a regular file is written through: its target is what the user means.
+std::string through_link(std::string path) {
+    std::error_code ec;
+    if (!std::filesystem::is_symlink(std::filesystem::symlink_status(path, ec)) ||
+        !std::filesystem::is_regular_file(std::filesystem::status(path, ec)))
+        return path;
+    auto target = std::filesystem::canonical(path, ec);
+    return ec ? path : target.string();
+}
+
 } // namespace
 
+std::string unreplaceable(const std::string& path) {
+    struct stat at {};
+    if (::lstat(path.c_str(), &at) != 0)
+        return "";
+    if (S_ISREG(at.st_mode))
+        return "";
+    if (S_ISLNK(at.st_mode)) {
+        struct stat target {};
+        if (::stat(path.c_str(), &target) != 0)
+            return "a symbolic link to nothing";
+        if (S_ISREG(target.st_mode))
+            return "";
+        return "a symbolic link to " + kind_of(target.st_mode);
+    }
+    return kind_of(at.st_mode);
+}
+
 AtomicOutput::AtomicOutput(std::string final_path)
-    : final_(std::move(final_path)), temporary_(temporary_name_for(final_)) {}
+    : final_(through_link(std::move(final_path))), temporary_(temporary_name_for(final_)) {}
 
 AtomicOutput::AtomicOutput(std::string final_path, MPI_Comm comm)
-    : final_(std::move(final_path)), comm_(comm) {
+    : final_(through_link(std::move(final_path))), comm_(comm) {
     if (comm_rank(comm) == 0)
         temporary_ = temporary_name_for(final_);
     unsigned long n = temporary_.size();
@@ -52,7 +92,18 @@ void AtomicOutput::commit() {
     const bool renamer = !comm_ || comm_rank(*comm_) == 0;
     if (comm_)
         MPI_Barrier(*comm_); // all ranks have closed the file
-    if (renamer && std::rename(temporary_.c_str(), final_.c_str()) != 0) {
+    // The last line of defence (the command line refuses such outputs before any
+    // work): rename would replace a device node or a fifo by the file.
+    struct stat there {};
+    if (renamer && ::lstat(final_.c_str(), &there) == 0 && !S_ISREG(there.st_mode)) {
+        fault = LocalFault{
+            0, ExitCode::output_failed,
+            fmt::format("{}: not replaced: it is {}, and longrun replaces only "
+                        "regular files",
+                        final_,
+                        S_ISLNK(there.st_mode) ? "a symbolic link" : kind_of(there.st_mode))};
+        std::remove(temporary_.c_str());
+    } else if (renamer && std::rename(temporary_.c_str(), final_.c_str()) != 0) {
         fault = LocalFault{
             0, ExitCode::output_failed,
             final_ + ": cannot move the finished file into place: " + std::strerror(errno)};

@@ -6,8 +6,10 @@
 #include <cerrno>
 #include <cstdio>
 #include <cstring>
+#include <fcntl.h>
 #include <filesystem>
 #include <memory>
+#include <sys/stat.h>
 #include <sys/statvfs.h>
 #include <unistd.h>
 
@@ -111,21 +113,102 @@ void give_back_space(hid_t object, std::optional<MPI_Comm> comm) {
         MPI_Barrier(*comm);
 }
 
+// Space that a flush may allocate beyond the end of the file HDF5 has already
+// laid out (free-space bookkeeping, a grown heap), on top of the metadata cache.
+constexpr std::uint64_t flush_slack_bytes = 64 << 10;
+
+// The name of an open file ("" when HDF5 cannot say).
+std::string file_name(hid_t object) {
+    const ssize_t length = H5Fget_name(object, nullptr, 0);
+    if (length <= 0)
+        return {};
+    std::string name(static_cast<std::size_t>(length) + 1, '\0');
+    if (H5Fget_name(object, name.data(), name.size()) <= 0)
+        return {};
+    name.resize(static_cast<std::size_t>(length));
+    return name;
+}
+
+// A disk that fills during HDF5's own metadata flush cannot be handled there:
+// under MPI-IO the rank whose write fails leaves the flush while the others wait
+// in it, and a failed flush on close leaves HDF5 (1.10) a half-closed file that
+// crashes it at exit. So the blocks the flush will write are reserved first: all
+// of the file HDF5 has laid out (its end of allocation, which every piece of
+// metadata still in the cache lies below), plus the cache's size and a slack for
+// what the flush allocates itself. The file's length is not changed (the
+// reservation lies beyond its end), and what is left over is given back after the
+// close. Rank 0 reserves for the file, and every rank learns the outcome: the
+// system's error number, 0 when reserved or when the file system cannot reserve
+// (then the flush goes ahead unprotected, as it must).
+int reserve_for_flush(hid_t file, std::optional<MPI_Comm> comm, std::string& name) {
+    int error_number = 0;
+    name = file_name(file);
+    if (!comm || comm_rank(*comm) == 0) {
+        // HDF5 tells its end of allocation only for serial files; under MPI-IO
+        // the length written so far stands in for it, and the metadata that lies
+        // beyond (at most the cache's worth, in aggregated blocks) is covered by
+        // adding the cache's size and the slack.
+        haddr_t end = 0;
+        if (H5Fget_eoa(file, &end) < 0) {
+            end = 0;
+            H5Eclear2(H5E_DEFAULT);
+        }
+        struct stat now {};
+        if (!name.empty() && ::stat(name.c_str(), &now) == 0)
+            end = std::max<std::uint64_t>(end, static_cast<std::uint64_t>(now.st_size));
+        std::size_t cache_max = 0, cache_min_clean = 0, cache_size = 0;
+        int cache_entries = 0;
+        if (H5Fget_mdc_size(file, &cache_max, &cache_min_clean, &cache_size, &cache_entries) < 0)
+            cache_size = cache_max;
+        const std::uint64_t length = end + cache_size + flush_slack_bytes;
+        const int fd = name.empty() ? -1 : ::open(name.c_str(), O_WRONLY | O_CLOEXEC);
+        if (fd >= 0) {
+            if (::fallocate(fd, FALLOC_FL_KEEP_SIZE, 0, static_cast<off_t>(length)) != 0 &&
+                errno != EOPNOTSUPP && errno != ENOSYS)
+                error_number = errno;
+            ::close(fd);
+        }
+    }
+    if (comm)
+        MPI_Bcast(&error_number, 1, MPI_INT, 0, *comm);
+    return error_number;
+}
+
+// Blocks reserved beyond the end of a closed file go back to the file system
+// (a truncation to the file's own length releases them).
+void release_reservation(const std::string& name, std::optional<MPI_Comm> comm) {
+    if (name.empty() || (comm && comm_rank(*comm) != 0))
+        return;
+    struct stat done {};
+    if (::stat(name.c_str(), &done) == 0)
+        (void)::truncate(name.c_str(), done.st_size);
+}
+
 // The closer of every file created for writing. HDF5 flushes metadata on close,
 // and a close whose flush fails leaves HDF5 (1.10) a half-closed file that crashes
-// it at exit. So the flush comes first, its outcome agreed among the ranks (closing
-// is collective: they are all here), and a failed one gives the doomed file's
-// blocks back before the close flushes again.
+// it at exit. So the space for the flush is reserved first, the flush comes next,
+// their outcome agreed among the ranks (closing is collective: they are all
+// here), and after a failure the doomed file's blocks are given back before the
+// close flushes again.
 herr_t close_written_file(hid_t file) {
     const FileComm comm(file);
-    errno = 0;
-    int flushed = H5Fflush(file, H5F_SCOPE_GLOBAL) >= 0;
-    last_close_errno = errno;
+    std::string name;
+    const int reserve_error = reserve_for_flush(file, comm.get(), name);
+    int flushed = 0;
+    if (reserve_error == 0) {
+        errno = 0;
+        flushed = H5Fflush(file, H5F_SCOPE_GLOBAL) >= 0;
+        last_close_errno = errno;
+    } else {
+        last_close_errno = reserve_error;
+    }
     if (comm.get())
         MPI_Allreduce(MPI_IN_PLACE, &flushed, 1, MPI_INT, MPI_LAND, *comm.get());
     if (!flushed)
         give_back_space(file, comm.get());
     const herr_t closed = H5Fclose(file);
+    if (flushed && closed >= 0)
+        release_reservation(name, comm.get());
     return flushed ? closed : herr_t(-1);
 }
 

@@ -6,6 +6,7 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <exception>
 #include <filesystem>
 #include <iterator>
 #include <optional>
@@ -54,13 +55,24 @@ h5::Handle create_copy(const std::string& temporary, const std::string& file) {
 }
 
 std::vector<std::string> members(hid_t group) {
-    std::vector<std::string> names;
+    struct Collected {
+        std::vector<std::string> names;
+        std::exception_ptr failure;
+    } collected;
     auto collect = [](hid_t, const char* name, const H5L_info_t*, void* out) -> herr_t {
-        static_cast<std::vector<std::string>*>(out)->emplace_back(name);
+        auto* to = static_cast<Collected*>(out);
+        try { // no exception may unwind through HDF5's C frames
+            to->names.emplace_back(name);
+        } catch (...) {
+            to->failure = std::current_exception();
+            return -1;
+        }
         return 0;
     };
-    H5Literate(group, H5_INDEX_NAME, H5_ITER_INC, nullptr, collect, &names);
-    return names;
+    H5Literate(group, H5_INDEX_NAME, H5_ITER_INC, nullptr, collect, &collected);
+    if (collected.failure)
+        std::rethrow_exception(collected.failure);
+    return collected.names;
 }
 
 // Attributes as stored (any type, variable-length strings included).
@@ -72,7 +84,12 @@ void copy_attributes(hid_t from, hid_t to, const std::string& file) {
         const hssize_t n = H5Sget_simple_extent_npoints(space);
         if (!a.valid() || !type.valid() || n < 0)
             return -1;
-        std::vector<unsigned char> buffer(static_cast<std::size_t>(n) * H5Tget_size(type) + 1);
+        std::vector<unsigned char> buffer;
+        try { // no exception may unwind through HDF5's C frames
+            buffer.resize(static_cast<std::size_t>(n) * H5Tget_size(type) + 1);
+        } catch (...) {
+            return -1;
+        }
         if (H5Aread(a, type, buffer.data()) < 0)
             return -1;
         h5::Handle b(

@@ -3,6 +3,7 @@
 #include "compare_job.hpp"
 #include "compare_plots.hpp"
 #include "compare_report.hpp"
+#include "option_range.hpp"
 #include "paths.hpp"
 #include "text_file.hpp"
 
@@ -57,17 +58,17 @@ int compare_command(MPI_Comm comm, CompareOptions& o) {
     const std::vector<std::string> plot_files =
         o.plot.empty() ? std::vector<std::string>{} : plot_names(o.plot, r.chains);
     const auto outputs = output_files(o, plot_files);
-    for (const auto& out : outputs) {
-        for (const auto& chain : r.chains)
-            require_distinct(chain, out);
-        require_writable_folder(out);
-    }
     // Hours of solving should not end in "cannot write": try the folders first.
-    agree_on_local_work(comm, [&] {
-        if (comm_rank(comm) == 0)
-            for (const auto& out : outputs)
-                probe_writable(out);
-    });
+    agree_on_outputs(
+        comm,
+        [&] {
+            for (const auto& out : outputs) {
+                for (const auto& chain : r.chains)
+                    require_distinct(chain, out);
+                require_output_file(out);
+            }
+        },
+        outputs);
 
     const CompareReport report = run_compare(comm, r);
 
@@ -165,7 +166,7 @@ Action add_compare(CLI::App& app) {
                     "start no run after this many seconds (a run already going is finished); "
                     "the rest are 'skipped' rows. 0: no limit")
         ->default_val(0)
-        ->check(CLI::NonNegativeNumber);
+        ->check(number_in(Interval::closed(0, longest_seconds)));
     sub->add_option("--preconditioner", o->preconditioner,
                     "for linear: amg (hypre BoomerAMG), ilu (block-Jacobi/ILU(0)), asm (additive "
                     "Schwarz, ILU(0) on overlapping blocks), lu (MUMPS)")
@@ -174,7 +175,7 @@ Action add_compare(CLI::App& app) {
     sub->add_option("--timing-products", o->request.timing_products,
                     "products timed per chain to measure one product's time")
         ->default_val(10)
-        ->check(CLI::Range(1, 100000));
+        ->check(whole_number_in(1, 100000));
     add_validation_options(sub, o->request.validation);
     sub->add_flag("-q,--quiet", o->quiet, "no progress lines on stderr");
     return [o](MPI_Comm comm) { return compare_command(comm, *o); };

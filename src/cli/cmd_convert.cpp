@@ -1,6 +1,7 @@
 // `longrun convert`: Matrix Market <-> chain file, validated on the way in.
 #include "chain_input.hpp"
 #include "commands.hpp"
+#include "option_range.hpp"
 #include "paths.hpp"
 
 #include "io/chain_file.hpp"
@@ -16,6 +17,9 @@
 namespace longrun::cli {
 
 namespace {
+
+// HDF5 refuses chunks of 4 GiB or more: 2^29 - 1 values of 8 bytes is the longest.
+constexpr std::uint64_t longest_chunk = (std::uint64_t{1} << 29) - 1;
 
 struct ConvertOptions {
     std::string input, output, kind;
@@ -33,8 +37,12 @@ bool looks_like_matrix_market(const std::string& path) {
 }
 
 int convert(MPI_Comm comm, const ConvertOptions& o) {
-    require_distinct(o.input, o.output);
-    require_writable_folder(o.output);
+    agree_on_outputs(comm,
+                     [&] {
+                         require_distinct(o.input, o.output);
+                         require_output_file(o.output);
+                     },
+                     {o.output});
     // The extension counts too: a .mtx file with a damaged banner must be refused
     // by the Matrix Market reader, which names the line, not by the HDF5 one.
     const bool from_mtx = looks_like_matrix_market(o.input) || has_extension(o.input, ".mtx");
@@ -114,10 +122,11 @@ Action add_convert(CLI::App& app) {
                   "transitions out of state j, so columns, not rows, sum to 1 (or 0)");
     add_validation_options(sub, o->validation);
     sub->add_option("--chunk", o->chunk, "HDF5 chunk length in elements (0: contiguous)")
-        ->default_val(0);
+        ->default_val(0)
+        ->check(whole_number_in(0, longest_chunk));
     sub->add_option("--deflate", o->deflate, "deflate level 1-9 for chunked output (0: none)")
         ->default_val(0)
-        ->check(CLI::Range(0, 9));
+        ->check(whole_number_in(0, 9));
     return [o](MPI_Comm comm) { return convert(comm, *o); };
 }
 

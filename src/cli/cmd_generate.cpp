@@ -2,6 +2,7 @@
 // rank 0; the other ranks only wait for the verdict, so that the verb behaves
 // the same alone and under mpirun.
 #include "commands.hpp"
+#include "option_range.hpp"
 #include "paths.hpp"
 
 #include "io/chain_file.hpp"
@@ -39,8 +40,12 @@ model::Overrides parse_sets(const std::vector<std::string>& sets) {
 }
 
 int generate(MPI_Comm comm, const GenerateOptions& o) {
-    require_distinct(o.model, o.output);
-    require_writable_folder(o.output);
+    agree_on_outputs(comm,
+                     [&] {
+                         require_distinct(o.model, o.output);
+                         require_output_file(o.output);
+                     },
+                     {o.output});
     const auto overrides = parse_sets(o.sets);
     std::string summary;
     agree_on_local_work(comm, [&] {
@@ -124,7 +129,8 @@ Action add_generate(CLI::App& app) {
     sub->add_option("--set", o->sets, "override a parameter: --set name=value (repeatable)");
     sub->add_option("--max-states", o->max_states,
                     "stop with exit 2 above this many states (default: what fits in the "
-                    "available memory)");
+                    "available memory)")
+        ->check(whole_number_in(1));
     sub->add_option("--lookup", o->lookup,
                     "state table: auto, direct (array over all value combinations) or hash")
         ->check(CLI::IsMember({"auto", "direct", "hash"}))

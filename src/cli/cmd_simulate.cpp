@@ -1,6 +1,7 @@
 // `longrun simulate`: an independent check of a solve by Monte-Carlo time averages,
 // and a way to watch what a chain that is not ergodic does from a given start.
 #include "commands.hpp"
+#include "option_range.hpp"
 #include "paths.hpp"
 #include "simulate_job.hpp"
 #include "simulate_output.hpp"
@@ -29,6 +30,9 @@ struct SimulateOptions {
 };
 
 constexpr const char* to_stdout = "-";
+
+// Every replication's estimates travel to rank 0 and are kept there.
+constexpr std::uint64_t most_replications = 100000;
 
 // Rank 0's replications as they finish, once the run has lasted a second (short
 // runs stay quiet); on a terminal at most one line a second.
@@ -65,16 +69,15 @@ int simulate_command(MPI_Comm comm, SimulateOptions& o) {
         r.against = o.against;
         require_distinct(r.chain_path, o.against);
     }
-    if (!o.json.empty() && o.json != to_stdout) {
-        require_distinct(r.chain_path, o.json);
-        if (r.against)
-            require_distinct(*r.against, o.json);
-        require_writable_folder(o.json);
-        agree_on_local_work(comm, [&] {
-            if (comm_rank(comm) == 0)
-                probe_writable(o.json);
-        });
-    }
+    if (!o.json.empty() && o.json != to_stdout)
+        agree_on_outputs(comm,
+                         [&] {
+                             require_distinct(r.chain_path, o.json);
+                             if (r.against)
+                                 require_distinct(*r.against, o.json);
+                             require_output_file(o.json);
+                         },
+                         {o.json});
     auto progress = std::make_shared<ReplicationProgress>(
         !o.quiet && comm_rank(comm) == 0, r.replications, o.time ? "time" : "steps");
     r.on_replication = [progress](const simulate::ReplicationResult& x) { (*progress)(x); };
@@ -131,27 +134,32 @@ Action add_simulate(CLI::App& app) {
         ->required();
     auto* time = sub->add_option("--time", o->time,
                                  "simulated time per replication (ctmc), after the warm-up")
-                     ->type_name("T");
+                     ->type_name("T")
+                     ->check(number_in(Interval::above(0)));
     auto* steps = sub->add_option("--steps", o->steps,
                                   "transitions per replication (dtmc, or a ctmc counted in "
                                   "jumps), after the warm-up")
-                      ->type_name("N");
+                      ->type_name("N")
+                      ->check(whole_number_in(1));
     time->excludes(steps);
     steps->excludes(time);
     sub->add_option("--replications", o->request.replications,
                     "independent runs, spread over the ranks (replication r on rank r % ranks); "
                     "2 or more test whether the chain is ergodic from the start")
         ->default_val(4)
-        ->type_name("R");
+        ->type_name("R")
+        ->check(whole_number_in(1, most_replications));
     sub->add_option("--seed", o->request.seed,
                     "the random streams: the same seed gives the same numbers on any number of "
                     "ranks")
-        ->default_val(1);
+        ->default_val(1)
+        ->check(whole_number_in(0));
     sub->add_option("--warmup", o->request.length.warmup,
                     "discarded at the start of each replication, in the run length's unit "
                     "(time with --time, steps with --steps)")
         ->default_val(0)
-        ->type_name("W");
+        ->type_name("W")
+        ->check(number_in(Interval::at_least(0)));
     sub->add_option("--from", o->from,
                     "start state: its index, or values of state variables that exactly one "
                     "state has, e.g. \"q1=0,q2=5\" (default: state 0)")
@@ -163,7 +171,8 @@ Action add_simulate(CLI::App& app) {
     sub->add_option("--confidence", o->request.confidence,
                     "level of each interval; with --against, the level for all comparisons "
                     "together")
-        ->default_val(0.95);
+        ->default_val(0.95)
+        ->check(number_in(Interval::open(0, 1)));
     sub->add_option("--json", o->json, "write everything as JSON to FILE, or '-' for stdout")
         ->type_name("FILE|-");
     sub->add_flag("--per-replication", o->per_replication,

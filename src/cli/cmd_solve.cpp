@@ -1,5 +1,6 @@
 // `longrun solve`: the main job.
 #include "commands.hpp"
+#include "option_range.hpp"
 #include "paths.hpp"
 #include "report.hpp"
 #include "solver_options.hpp"
@@ -27,34 +28,47 @@ struct SolveOptions {
     std::optional<std::string> resume;
 };
 
-int solve_command(MPI_Comm comm, SolveOptions& o) {
+// Every usage check that may depend on the rank's view of the file system.
+void check_paths(const SolveOptions& o) {
     if (!o.output.empty()) {
         require_distinct(o.request.chain_path, o.output);
-        require_writable_folder(o.output);
-        o.request.output = o.output;
+        require_output_file(o.output);
     }
-    o.request.method = o.solver.method;
-    o.request.tolerance = o.solver.tolerance;
-    o.request.residual_tolerance = o.solver.residual_tolerance;
-    o.request.preconditioner = solve::preconditioner_named(o.solver.preconditioner);
-    o.request.partition = *partition::parse_layout(o.partition);
-    o.request.progress = !o.quiet;
-    if ((o.start_state || o.start_distribution) && !o.request.per_class)
-        throw UsageError("--from and --from-distribution go with --per-class");
-    if (o.start_state && o.start_distribution)
-        throw UsageError("give either --from or --from-distribution, not both");
-    if (o.warm_start && o.resume)
-        throw UsageError("give either --start (an earlier result) or --resume (a checkpoint)");
     for (const auto* path : {&o.warm_start, &o.checkpoint, &o.resume})
         if (*path)
             require_distinct(o.request.chain_path, **path);
     if (o.checkpoint) {
         if (!o.output.empty())
             require_distinct(o.output, *o.checkpoint);
-        require_writable_folder(*o.checkpoint);
+        require_output_file(*o.checkpoint);
     }
     if (o.resume && !o.checkpoint)
-        require_writable_folder(*o.resume);
+        require_output_file(*o.resume); // checkpoints go on into it
+}
+
+int solve_command(MPI_Comm comm, SolveOptions& o) {
+    if ((o.start_state || o.start_distribution) && !o.request.per_class)
+        throw UsageError("--from and --from-distribution go with --per-class");
+    if (o.start_state && o.start_distribution)
+        throw UsageError("give either --from or --from-distribution, not both");
+    if (o.warm_start && o.resume)
+        throw UsageError("give either --start (an earlier result) or --resume (a checkpoint)");
+    std::vector<std::string> written;
+    if (!o.output.empty())
+        written.push_back(o.output);
+    if (o.checkpoint || o.resume)
+        written.push_back(o.checkpoint ? *o.checkpoint : *o.resume);
+    // Hours of solving must not end in "cannot write", on any node.
+    agree_on_outputs(
+        comm, [&] { check_paths(o); }, written, Writers::every_rank);
+    if (!o.output.empty())
+        o.request.output = o.output;
+    o.request.method = o.solver.method;
+    o.request.tolerance = o.solver.tolerance;
+    o.request.residual_tolerance = o.solver.residual_tolerance;
+    o.request.preconditioner = solve::preconditioner_named(o.solver.preconditioner);
+    o.request.partition = *partition::parse_layout(o.partition);
+    o.request.progress = !o.quiet;
     o.request.warm_start = o.warm_start;
     o.request.checkpoint = o.checkpoint;
     o.request.resume = o.resume;
@@ -116,7 +130,8 @@ Action add_solve(CLI::App& app) {
                   "class on its own instead of stopping with exit 3");
     sub->add_option("--from", o->start_state,
                     "with --per-class: the start state; adds the probability of ending in each "
-                    "class and the long-run distribution from that start (/distribution)");
+                    "class and the long-run distribution from that start (/distribution)")
+        ->check(whole_number_in(0));
     sub->add_option("--from-distribution", o->start_distribution,
                     "with --per-class: an HDF5 file whose /distribution dataset is the start "
                     "distribution");
@@ -137,7 +152,7 @@ Action add_solve(CLI::App& app) {
     sub->add_option("--checkpoint-every", o->request.checkpoint_every,
                     "seconds between checkpoints")
         ->default_val(300)
-        ->check(CLI::NonNegativeNumber);
+        ->check(number_in(Interval::closed(0, longest_seconds)));
     sub->add_option("--resume", o->resume,
                     "continue from this checkpoint if it exists (else start from the beginning, "
                     "and say so); keeps checkpointing into it unless --checkpoint names another "
@@ -147,7 +162,7 @@ Action add_solve(CLI::App& app) {
                     "warn when the probability at a state variable's declared bound exceeds "
                     "this (a sign that the bound cuts off real mass)")
         ->default_val(1e-6)
-        ->check(CLI::PositiveNumber);
+        ->check(number_in(Interval::open_closed(0, 1)));
     sub->add_flag("--json", o->json, "print the report as one JSON object on stdout");
     sub->add_flag("-q,--quiet", o->quiet, "no progress lines on stderr");
     return [o](MPI_Comm comm) { return solve_command(comm, *o); };

@@ -1,5 +1,6 @@
 // `longrun summarize`: the answers people act on, from a solved result.
 #include "commands.hpp"
+#include "option_range.hpp"
 #include "paths.hpp"
 #include "summarize_job.hpp"
 #include "summary_html.hpp"
@@ -39,19 +40,25 @@ int summarize_command(MPI_Comm comm, SummarizeOptions& o) {
     for (const auto* f : {&o.json, &o.csv, &o.report})
         if (!f->empty() && *f != to_stdout)
             outputs.push_back(*f);
-    for (const auto& out : outputs) {
-        require_distinct(r.result_path, out);
-        if (r.chain_path)
-            require_distinct(*r.chain_path, out);
-        require_writable_folder(out);
-    }
-    if (!o.plot.empty())
-        require_writable_folder(o.plot + "-x.png");
-    agree_on_local_work(comm, [&] {
-        if (comm_rank(comm) == 0)
-            for (const auto& out : outputs)
-                probe_writable(out);
-    });
+    agree_on_outputs(
+        comm,
+        [&] {
+            for (const auto& out : outputs) {
+                require_distinct(r.result_path, out);
+                if (r.chain_path)
+                    require_distinct(*r.chain_path, out);
+                require_output_file(out);
+            }
+            // The plots' names come from the chain's variables, known only later;
+            // each is still refused if something other than a file has its name.
+            if (!o.plot.empty())
+                require_writable_folder(o.plot + "-x.png");
+            if (r.store)
+                if (const std::string there = io::unreplaceable(r.result_path); !there.empty())
+                    throw UsageError("the result '" + r.result_path + "' is " + there +
+                                     ": its summary cannot be stored (use --no-store)");
+        },
+        outputs);
 
     const SummaryReport report = run_summary(comm, r);
 
@@ -131,7 +138,7 @@ Action add_summarize(CLI::App& app) {
         ->type_name("NAME=EXPR");
     sub->add_option("--top", o->request.top, "list this many most likely states")
         ->default_val(10)
-        ->check(CLI::Range(0, 100000));
+        ->check(whole_number_in(0, 100000));
     sub->add_option("--json", o->json, "write everything as JSON to FILE, or '-' for stdout")
         ->type_name("FILE|-");
     sub->add_option("--csv", o->csv,

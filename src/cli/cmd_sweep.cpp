@@ -1,6 +1,7 @@
 // `longrun sweep`: one model parameter over a range of values, a table of the
 // answers, their plots, and where a condition first holds.
 #include "commands.hpp"
+#include "option_range.hpp"
 #include "paths.hpp"
 #include "solver_options.hpp"
 #include "summarize_job.hpp"
@@ -91,7 +92,12 @@ int sweep_command(MPI_Comm comm, SweepOptions& o) {
         if (!o.model.empty() || !o.vary.empty() || !o.prefix.empty() || o.only >= 0)
             throw UsageError("--gather PREFIX takes nothing else: it reads PREFIX.point-*.json "
                              "and writes PREFIX.csv, PREFIX.json and the plots");
-        require_writable_folder(o.gather + ".csv");
+        agree_on_outputs(comm,
+                         [&] {
+                             for (const char* ext : {".csv", ".json"})
+                                 require_output_file(o.gather + ext);
+                         },
+                         {o.gather + ".csv"});
         SweepTable table;
         agree_on_local_work(comm, [&] {
             if (rank == 0)
@@ -123,12 +129,17 @@ int sweep_command(MPI_Comm comm, SweepOptions& o) {
     // Hours of solving should not end in "cannot write": try the folder first.
     const std::string first_output =
         r.only ? point_file_name(o.prefix, *r.only) : o.prefix + ".csv";
-    require_distinct(o.model, first_output);
-    require_writable_folder(first_output);
-    agree_on_local_work(comm, [&] {
-        if (rank == 0)
-            probe_writable(first_output);
-    });
+    std::vector<std::string> outputs{first_output};
+    if (!r.only)
+        outputs.push_back(o.prefix + ".json");
+    agree_on_outputs(comm,
+                     [&] {
+                         for (const auto& out : outputs) {
+                             require_distinct(o.model, out);
+                             require_output_file(out);
+                         }
+                     },
+                     {first_output});
 
     const std::size_t total = r.only ? 1 : r.axis.values.size();
     std::size_t done = 0;
@@ -215,7 +226,7 @@ Action add_sweep(CLI::App& app) {
     sub->add_option("--only", o->only,
                     "compute just the point with this index (0-based; a job array's task index) "
                     "and write PREFIX.point-INDEX.json")
-        ->check(CLI::NonNegativeNumber);
+        ->check(whole_number_in(0, max_sweep_points - 1));
     sub->add_option("--gather", o->gather,
                     "merge PREFIX.point-*.json into the table, files and crossing")
         ->type_name("PREFIX");
@@ -225,7 +236,8 @@ Action add_sweep(CLI::App& app) {
     sub->add_flag("--keep", o->request.keep, "keep the points' chain and result files");
     add_solver_options(sub, o->solver);
     sub->add_option("--max-states", o->request.max_states,
-                    "stop with exit 2 when a value's chain has more states than this");
+                    "stop with exit 2 when a value's chain has more states than this")
+        ->check(whole_number_in(1));
     sub->add_flag("-q,--quiet", o->quiet, "no progress lines, no list of files written");
     sub->add_flag("--verbose", o->verbose, "also the solver's own progress lines");
     return [o](MPI_Comm comm) { return sweep_command(comm, *o); };

@@ -5,12 +5,14 @@
 #include "stop_signal.hpp"
 
 #include "io/error.hpp"
+#include "io/mpi_agree.hpp"
 #include "solve/petsc_error.hpp"
 
 #include <slepcsys.h>
 
 #include <algorithm>
 #include <cstdio>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -86,22 +88,31 @@ int main(int argc, char** argv) {
     std::vector<const char*> cargs;
     for (const auto& s : ours)
         cargs.push_back(s.c_str());
+    // The command line is the same on every rank, but what some checks see is not
+    // (--options-file on a node-local disk): a rank that refuses it alone must not
+    // leave the others waiting, so every rank learns the verdict.
+    std::optional<longrun::LocalFault> refused;
     try {
         app.parse(static_cast<int>(cargs.size()), cargs.data());
     } catch (const CLI::ParseError& e) {
-        if (rank == 0) {
-            if (e.get_exit_code() == 0)
-                app.exit(e); // --help, --version
-            else {
-                // One line like every other error: batch logs are read with grep.
-                std::string what = e.what();
-                std::replace(what.begin(), what.end(), '\n', ' ');
-                report_error(-1, what + " (see longrun --help)");
-            }
+        if (e.get_exit_code() == 0) { // --help, --version: nothing to agree on
+            if (rank == 0)
+                app.exit(e);
+            SlepcFinalize();
+            return 0;
         }
-        code = e.get_exit_code() == 0 ? 0 : 1;
+        // One line like every other error: batch logs are read with grep.
+        std::string what = e.what();
+        std::replace(what.begin(), what.end(), '\n', ' ');
+        refused = longrun::LocalFault{0, longrun::ExitCode::usage, what + " (see longrun --help)"};
+    }
+    try {
+        longrun::agree_or_throw(comm, refused);
+    } catch (const longrun::Error& e) {
+        if (rank == 0)
+            report_error(-1, e.what());
         SlepcFinalize();
-        return code;
+        return 1;
     }
 
     std::string joined;

@@ -195,7 +195,7 @@ SweepAxis parse_vary(const std::string& text) {
     SweepAxis axis;
     axis.parameter = trim(text.substr(0, eq));
     const std::string rest = text.substr(eq + 1);
-    constexpr std::size_t max_points = 100000;
+    constexpr std::size_t max_points = max_sweep_points;
     if (rest.find(':') != std::string::npos) {
         std::vector<std::optional<double>> parts;
         std::size_t from = 0;

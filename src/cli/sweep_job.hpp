@@ -18,6 +18,9 @@
 
 namespace longrun::cli {
 
+// The most values one --vary may give.
+inline constexpr std::size_t max_sweep_points = 100000;
+
 // "arrival=2:6:0.25" (start:stop:step, stop included within rounding) or
 // "arrival=2,3,5". Throws UsageError on anything else.
 struct SweepAxis {

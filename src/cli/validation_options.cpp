@@ -1,4 +1,5 @@
 #include "commands.hpp"
+#include "option_range.hpp"
 
 namespace longrun::cli {
 
@@ -11,7 +12,7 @@ void add_validation_options(CLI::App* sub, io::ValidationOptions& options) {
                     "Market, the allowed |diagonal + sum of the row's rates| relative to the "
                     "larger of the two")
         ->default_val(1e-8)
-        ->check(CLI::PositiveNumber);
+        ->check(number_in(Interval::open_closed(0, 0.1)));
 }
 
 } // namespace longrun::cli

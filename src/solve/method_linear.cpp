@@ -34,18 +34,19 @@ struct MonitorContext {
 
 PetscErrorCode monitor(KSP ksp, PetscInt it, PetscReal rnorm, void* raw) {
     auto* ctx = static_cast<MonitorContext*>(raw);
-    record_iteration(*ctx->attempt, ctx->base_iteration + it, rnorm, *ctx->settings);
-    if (ctx->settings->checkpoint && it > 0 && ctx->settings->checkpoint->due()) {
-        // GMRES keeps no iterate between restarts: build it (one preconditioner
-        // application), only when a checkpoint is due.
-        Vec current = nullptr;
-        PetscCall(KSPBuildSolution(ksp, nullptr, &current));
-        try {
+    try {
+        record_iteration(*ctx->attempt, ctx->base_iteration + it, rnorm, *ctx->settings);
+        if (ctx->settings->checkpoint && it > 0 && ctx->settings->checkpoint->due()) {
+            // GMRES keeps no iterate between restarts: build it (one preconditioner
+            // application), only when a checkpoint is due.
+            Vec current = nullptr;
+            PetscCall(KSPBuildSolution(ksp, nullptr, &current));
             ctx->settings->checkpoint->save(current, "linear", ctx->base_iteration + it);
-        } catch (...) { // the agreed stop on a signal: every rank is here
-            ctx->parked = std::current_exception();
-            return PETSC_ERR_USER;
         }
+    } catch (...) { // e.g. the agreed stop on a signal (every rank is here): KSPSolve
+                    // returns, and the caller rethrows
+        ctx->parked = std::current_exception();
+        return PETSC_ERR_USER;
     }
     return 0;
 }

@@ -42,8 +42,12 @@ struct MonitorContext {
 PetscErrorCode monitor(EPS, PetscInt its, PetscInt, PetscScalar*, PetscScalar*, PetscReal* errest,
                        PetscInt nest, void* raw) {
     auto* ctx = static_cast<MonitorContext*>(raw);
-    if (nest > 0)
-        record_iteration(*ctx->attempt, ctx->base_iteration + its, errest[0], *ctx->settings);
+    try {
+        if (nest > 0)
+            record_iteration(*ctx->attempt, ctx->base_iteration + its, errest[0], *ctx->settings);
+    } catch (...) { // stops EPSSolve; its check() rethrows
+        return park_current_exception();
+    }
     return 0;
 }
 

@@ -27,7 +27,15 @@ struct MethodDeclined : Error {
 // once after PetscInitialize.
 void use_exceptions_for_petsc_errors();
 
+// Throws LibraryError for a non-zero code, or the exception a callback parked
+// during the call that returned it.
 void check(PetscErrorCode code, const char* what);
+
+// For C callbacks run by PETSc or SLEPc (monitors, convergence tests): no
+// exception may unwind through their C frames. The callback catches everything,
+// parks it here and returns the code this gives; the PETSc call then returns that
+// code and its check() rethrows the parked exception. Call only inside catch.
+PetscErrorCode park_current_exception() noexcept;
 
 template <class T, PetscErrorCode (*Destroy)(T*)>
 class PetscHandle {

@@ -15,6 +15,10 @@
 #include <fmt/format.h>
 #include <gtest/gtest.h>
 #include <hdf5.h>
+#include <sys/socket.h>
+#include <sys/stat.h>
+#include <sys/un.h>
+#include <unistd.h>
 
 #include <cmath>
 #include <cstdio>
@@ -59,9 +63,14 @@ TEST_F(CliBadInput, UnreadableFile) {
     const auto bad = write_chain("locked.h5", six_state_dtmc());
     fs::permissions(bad, fs::perms::none);
     CommandOptions as_user;
-    if (geteuid() == 0) // root reads anything; nobody does not
+    if (geteuid() == 0) { // root reads anything; nobody does not
         as_user.run_as = nobody;
+        // ... but nobody must be able to write the output there: solve tries
+        // that first, and this case is about the input.
+        fs::permissions(dir_, fs::perms::others_write, fs::perm_options::add);
+    }
     expect_solve_refused(bad, code(ExitCode::bad_input), {}, {}, 0, as_user);
+    fs::permissions(dir_, fs::perms::others_write, fs::perm_options::remove);
     fs::permissions(bad, fs::perms::owner_read | fs::perms::owner_write);
 }
 
@@ -239,7 +248,8 @@ TEST_F(CliBadInput, RowSumOffAcceptedWithRenormalize) {
 
 TEST_F(CliBadInput, RowSumOffAcceptedWithLooseTolerance) {
     const auto bad = write_chain("row-sum.h5", row3_sums_to_0_9());
-    expect_solved(bad, 6, {"--row-sum-tol", "0.2"});
+    // Row 3 is off by 0.1, the loosest tolerance the option takes.
+    expect_solved(bad, 6, {"--row-sum-tol", "0.1"});
 }
 
 // Data rounded to 9 digits passes the default row-sum check; the default
@@ -285,6 +295,253 @@ TEST_F(CliBadInput, OutputFolderMissing) {
     expect_refused({"solve", good.string(), "-o", nowhere.string(), "-q"}, good,
                    code(ExitCode::usage), {nowhere.string()}, 0, {}, false);
     EXPECT_FALSE(fs::exists(nowhere.parent_path()));
+}
+
+// Every numeric option has a range; a value outside it is one sentence naming the
+// option, the value as typed (never a 300-digit rendering of it) and the range.
+struct OutOfRange {
+    std::vector<std::string> args; // the verb and its arguments; CHAIN is the chain file
+    std::string option, typed, range;
+};
+
+TEST_F(CliBadInput, NumericOptionsOutOfRange) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    const std::string chain = good.string(), out = out_.string();
+    const std::string huge = "1" + std::string(300, '0');
+    const std::vector<OutOfRange> cases = {
+        {{"solve", chain, "-o", out, "--row-sum-tol", "0"}, "--row-sum-tol", "0", "(0, 0.1]"},
+        {{"solve", chain, "-o", out, "--row-sum-tol", "2"}, "--row-sum-tol", "2", "(0, 0.1]"},
+        {{"solve", chain, "-o", out, "--row-sum-tol", "nan"}, "--row-sum-tol", "nan", "(0, 0.1]"},
+        {{"solve", chain, "-o", out, "--row-sum-tol", "1e999"},
+         "--row-sum-tol",
+         "1e999",
+         "(0, 0.1]"},
+        {{"solve", chain, "-o", out, "--row-sum-tol", "0.01x"},
+         "--row-sum-tol",
+         "0.01x",
+         "(0, 0.1]"},
+        {{"solve", chain, "-o", out, "--checkpoint-every", "-1"},
+         "--checkpoint-every",
+         "-1",
+         "[0, 10000000]"},
+        {{"solve", chain, "-o", out, "--truncation-warn", "0"}, "--truncation-warn", "0", "(0, 1]"},
+        {{"solve", chain, "-o", out, "--per-class", "--from", "-1"}, "--from", "-1", ">= 0"},
+        {{"check", chain, "--row-sum-tol", "-1e-9"}, "--row-sum-tol", "-1e-9", "(0, 0.1]"},
+        {{"convert", chain, out, "--deflate", "10"}, "--deflate", "10", "[0, 9]"},
+        {{"convert", chain, out, "--chunk", "1e3"}, "--chunk", "1e3", "[0, 536870911]"},
+        {{"compare", chain, "--timing-products", "0"}, "--timing-products", "0", "[1, 100000]"},
+        {{"compare", chain, "--max-seconds", "inf"}, "--max-seconds", "inf", "[0, 10000000]"},
+        {{"summarize", chain, "--top", "100001"}, "--top", "100001", "[0, 100000]"},
+        {{"simulate", chain, "--time", "0"}, "--time", "0", "> 0"},
+        {{"simulate", chain, "--steps", "0"}, "--steps", "0", ">= 1"},
+        {{"simulate", chain, "--steps", "10", "--replications", "0"},
+         "--replications",
+         "0",
+         "[1, 100000]"},
+        {{"simulate", chain, "--steps", "10", "--seed", "-3"}, "--seed", "-3", ">= 0"},
+        {{"simulate", chain, "--steps", "10", "--warmup", "-1"}, "--warmup", "-1", ">= 0"},
+        {{"simulate", chain, "--steps", "10", "--confidence", "1"}, "--confidence", "1", "(0, 1)"},
+        {{"sweep", chain, "--vary", "a=1,2", "-o", out, "--only", "-1"},
+         "--only",
+         "-1",
+         "[0, 99999]"},
+        {{"sweep", chain, "--vary", "a=1,2", "-o", out, "--max-states", "0"},
+         "--max-states",
+         "0",
+         ">= 1"},
+        {{"generate", chain, "-o", out, "--max-states", "0"}, "--max-states", "0", ">= 1"},
+    };
+    for (const auto& c : cases) {
+        SCOPED_TRACE(c.option + " " + c.typed);
+        const CommandResult r = expect_refused(c.args, good, code(ExitCode::usage),
+                                               {c.option, c.typed, c.range}, 0, {}, false);
+        EXPECT_NE(r.err.find(c.option + ": " + c.typed + " is not a"), std::string::npos)
+            << r.describe();
+    }
+    // A value of 301 digits is echoed shortened, not spelled out.
+    const CommandResult r =
+        expect_refused({"solve", chain, "-o", out, "--row-sum-tol", huge}, good,
+                       code(ExitCode::usage), {"--row-sum-tol", "(0, 0.1]", "..."}, 0, {}, false);
+    EXPECT_EQ(r.err.find(huge), std::string::npos) << r.describe();
+    EXPECT_LT(r.err.size(), 200u) << r.describe();
+}
+
+TEST_F(CliBadInput, NumericOptionsAtTheirBoundsAreAccepted) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    expect_solved(good, 6,
+                  {"--row-sum-tol", "0.1", "--truncation-warn", "1", "--checkpoint-every", "0"});
+}
+
+// --- outputs: nothing is replaced but a regular file ------------------------
+
+class CliOutputs : public CliFixture {
+  protected:
+    // `args` refused before any work: exit 1, one line naming `output` and
+    // `what` is there; the folder unchanged.
+    void expect_output_refused(const std::vector<std::string>& args, const fs::path& chain,
+                               const std::string& output, const std::string& what, int ranks = 0) {
+        const CommandResult r = expect_refused(args, chain, code(ExitCode::usage),
+                                               {output, what, "regular"}, ranks, {}, false);
+        // Refused before the solve: no progress, nothing read.
+        EXPECT_EQ(r.err.find("iteration"), std::string::npos) << r.describe();
+    }
+    fs::path make_fifo(const std::string& name) {
+        const auto p = dir_ / name;
+        EXPECT_EQ(::mkfifo(p.c_str(), 0600), 0);
+        return p;
+    }
+    // A bound UNIX socket; its file stays until the test's folder goes.
+    fs::path make_socket(const std::string& name) {
+        const auto p = dir_ / name;
+        const int s = ::socket(AF_UNIX, SOCK_STREAM, 0);
+        sockaddr_un address{};
+        address.sun_family = AF_UNIX;
+        std::snprintf(address.sun_path, sizeof address.sun_path, "%s", p.c_str());
+        EXPECT_EQ(::bind(s, reinterpret_cast<sockaddr*>(&address), sizeof address), 0);
+        ::close(s);
+        return p;
+    }
+};
+
+TEST_F(CliOutputs, SolveNeverWritesOverADevice) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    for (const char* device : {"/dev/null", "/dev/full"}) {
+        struct stat before {};
+        ASSERT_EQ(::stat(device, &before), 0);
+        expect_output_refused({"solve", good.string(), "-o", device, "-q"}, good, device,
+                              "a device");
+        struct stat after {};
+        ASSERT_EQ(::stat(device, &after), 0);
+        EXPECT_TRUE(S_ISCHR(after.st_mode)) << device << " is no longer a device";
+        EXPECT_EQ(after.st_rdev, before.st_rdev);
+        EXPECT_EQ(after.st_ino, before.st_ino) << device << " was replaced";
+    }
+}
+
+TEST_F(CliOutputs, SolveRefusesAFolderBeforeSolving) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    expect_output_refused({"solve", good.string(), "-o", dir_.string(), "-q"}, good, dir_.string(),
+                          "a folder");
+    // "-o ." from inside the folder.
+    CommandOptions inside;
+    inside.working_directory = dir_.string();
+    const auto before = listing(dir_);
+    const CommandResult r =
+        run_command(command({"solve", good.string(), "-o", ".", "-q"}, 0), inside);
+    EXPECT_EQ(r.exit_code, code(ExitCode::usage)) << r.describe();
+    EXPECT_EQ(lines_of(r.err).size(), 1u) << r.describe();
+    EXPECT_NE(r.err.find("'.' exists and is a folder"), std::string::npos) << r.describe();
+    EXPECT_EQ(listing(dir_), before);
+}
+
+TEST_F(CliOutputs, SolveRefusesAFifoASocketAndALinkToADevice) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    const auto fifo = make_fifo("fifo.h5");
+    expect_output_refused({"solve", good.string(), "-o", fifo.string(), "-q"}, good, fifo.string(),
+                          "a named pipe (fifo)");
+    EXPECT_TRUE(fs::is_fifo(fifo));
+    const auto socket = make_socket("socket.h5");
+    expect_output_refused({"solve", good.string(), "-o", socket.string(), "-q"}, good,
+                          socket.string(), "a socket");
+    EXPECT_TRUE(fs::is_socket(socket));
+    const auto link = dir_ / "null.h5";
+    fs::create_symlink("/dev/null", link);
+    expect_output_refused({"solve", good.string(), "-o", link.string(), "-q"}, good, link.string(),
+                          "a symbolic link to a device");
+    EXPECT_TRUE(fs::is_symlink(link));
+    expect_output_refused(
+        {"solve", good.string(), "-o", out_.string(), "-q", "--checkpoint", fifo.string()}, good,
+        fifo.string(), "a named pipe (fifo)");
+    expect_output_refused(
+        {"solve", good.string(), "-o", out_.string(), "-q", "--resume", fifo.string()}, good,
+        fifo.string(), "a named pipe (fifo)");
+}
+
+TEST_F(CliOutputs, TwoRanksRefuseADeviceTogether) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    expect_output_refused({"solve", good.string(), "-o", "/dev/null", "-q"}, good, "/dev/null",
+                          "a device", 2);
+}
+
+TEST_F(CliOutputs, EveryVerbRefusesADevice) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    const auto model = write_text("queue.yaml", "kind: ctmc\n");
+    const auto folder = dir_ / "folder";
+    fs::create_directory(folder);
+    const std::string chain = good.string(), null = "/dev/null", dir = folder.string();
+    expect_output_refused({"convert", chain, null}, good, null, "a device");
+    expect_output_refused({"generate", model.string(), "-o", null, "--quiet"}, good, null,
+                          "a device");
+    expect_output_refused({"compare", chain, "--json", null, "-q"}, good, null, "a device");
+    expect_output_refused({"compare", chain, "--csv", dir, "-q"}, good, dir, "a folder");
+    expect_output_refused({"summarize", chain, "--report", null, "-q"}, good, null, "a device");
+    expect_output_refused({"summarize", chain, "--json", dir, "-q"}, good, dir, "a folder");
+    expect_output_refused({"summarize", chain, "--csv", null, "-q"}, good, null, "a device");
+    expect_output_refused({"simulate", chain, "--steps", "10", "--json", null, "-q"}, good, null,
+                          "a device");
+    fs::create_directory(dir_ / "table.csv");
+    expect_output_refused(
+        {"sweep", model.string(), "--vary", "a=1,2", "-o", (dir_ / "table").string(), "-q"}, good,
+        (dir_ / "table.csv").string(), "a folder");
+    expect_output_refused({"sweep", "--gather", (dir_ / "table").string(), "-q"}, good,
+                          (dir_ / "table.csv").string(), "a folder");
+}
+
+TEST_F(CliOutputs, ALinkToARegularFileIsWrittenThrough) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    const auto target = write_text("target.h5", "an old result\n");
+    fs::create_symlink(target, out_);
+    const CommandResult r = run_command(command(solve_args(good, {}), 0));
+    EXPECT_EQ(r.exit_code, 0) << r.describe();
+    EXPECT_TRUE(fs::is_symlink(out_)) << "the link was replaced";
+    EXPECT_GT(H5Fis_hdf5(target.c_str()), 0) << "the result did not go to the link's target";
+}
+
+// Ranks need not see the same files: on a cluster each node has its own scratch,
+// and a relative path means something else on ranks started in other folders.
+// Here the two ranks of one job start in two folders (mpirun's -wdir per
+// program), and only one of them has the folder `out/`, or the options file. The
+// rank that refuses must not leave the other waiting in a collective call: the
+// job ends with exit 1 and one line, whichever rank saw the problem. (The
+// timeout only ends a hung job; it is not a measurement.)
+TEST_F(CliOutputs, TwoRanksThatSeeDifferentFoldersAgree) {
+    const auto good = write_chain("good.h5", six_state_dtmc());
+    for (int lacking : {0, 1}) {
+        SCOPED_TRACE("rank " + std::to_string(lacking) + " lacks out/ and opts.txt");
+        const fs::path node[2] = {dir_ / ("node0-" + std::to_string(lacking)),
+                                  dir_ / ("node1-" + std::to_string(lacking))};
+        for (int r : {0, 1}) {
+            fs::create_directory(node[r]);
+            if (r != lacking) {
+                fs::create_directory(node[r] / "out");
+                std::ofstream(node[r] / "opts.txt") << "-linear_ksp_type gmres\n";
+            }
+        }
+        for (const auto& extra :
+             {std::vector<std::string>{}, std::vector<std::string>{"--options-file", "opts.txt"}}) {
+            std::vector<std::string> argv{mpirun, "-q", "--oversubscribe"};
+            for (int r : {0, 1}) {
+                if (r == 1)
+                    argv.push_back(":");
+                argv.insert(argv.end(), {"-n", "1", "-wdir", node[r].string(), binary_});
+                if (!extra.empty())
+                    argv.insert(argv.end(), extra.begin(), extra.end());
+                argv.insert(argv.end(), {"solve", good.string(), "-o", "out/OUT.h5", "-q"});
+            }
+            CommandOptions options;
+            options.timeout = std::chrono::seconds(60);
+            const CommandResult r = run_command(argv, options);
+            EXPECT_FALSE(r.timed_out) << "a rank was left waiting\n" << r.describe();
+            EXPECT_EQ(r.exit_code, code(ExitCode::usage)) << r.describe();
+            const auto lines = lines_of(r.err);
+            EXPECT_EQ(lines.size(), 1u) << r.describe();
+            EXPECT_NE(r.err.find(extra.empty() ? "out/OUT.h5" : "opts.txt"), std::string::npos)
+                << r.describe();
+            EXPECT_EQ(r.err.find("(rank"), std::string::npos) << r.describe();
+            EXPECT_FALSE(fs::exists(node[1 - lacking] / "out" / "OUT.h5"));
+            EXPECT_TRUE(fs::is_empty(node[1 - lacking] / "out"));
+        }
+    }
 }
 
 TEST_F(CliBadInput, StartGivenAStateNumberPointsToFrom) {

@@ -15,10 +15,17 @@ full disk.
                                   references; without --checkpoint: exit 7, nothing
   faults.py diskfull DIR          the result write hits a full filesystem (a 32 KiB
                                   tmpfs, 1 and 2 ranks; where mounting is not allowed,
-                                  a file-size limit on 1 rank instead): exit 6, one
-                                  line naming the file and the system's reason, no
-                                  file under the final name, no temporary left,
-                                  input untouched
+                                  a file-size limit on 1 rank instead, and the test
+                                  then reports itself skipped): exit 6, one line
+                                  naming the file and the system's reason, no file
+                                  under the final name, no temporary left, input
+                                  untouched
+  faults.py metadata DIR          the same when the disk fills only during HDF5's
+                                  final metadata flush: a tmpfs that holds every
+                                  byte of the result's data but not the whole file
+                                  (1 and 2 ranks; skipped where mounting is not
+                                  allowed). Before longrun reserved the flush's
+                                  space, this hung 2 ranks and crashed 1 at exit
 
 The references are outside longrun (SciPy's sparse LU, scipy_reference.py) and a
 longrun run that was never interrupted. No sleeps synchronise anything: the test
@@ -35,6 +42,7 @@ import subprocess
 import sys
 import time
 
+import h5py
 import numpy as np
 
 import e2e_common as e2e
@@ -57,6 +65,10 @@ TOL = "1e-11"
 UNREACHABLE_TOL = "1e-30"
 ENDLESS = ["--", "-power_max_it", "1000000000", "-power_window", "1000000000"]
 SAFETY_TIMEOUT = "110"
+# ctest counts this exit status as "skipped" (SKIP_RETURN_CODE in CMakeLists.txt):
+# a case that cannot run here must not pass as a weaker one.
+SKIPPED = 77
+
 # Two answers certified to an estimated error of 1e-11 each are within 2e-11 of
 # each other in the 1-norm; 1e-10 is the agreement asked for, with room for an
 # estimate that understates by the 2x the tests allow.
@@ -373,6 +385,73 @@ def diskfull(folder):
         if mounted:
             subprocess.run(["umount", full], check=False)
     check(checksum(chain) == before, "the input chain file changed")
+    return mounted
+
+
+def fresh_mount_point(folder, name):
+    point = os.path.join(folder, name)
+    if os.path.ismount(point):
+        subprocess.run(["umount", point], check=False)
+    os.makedirs(point, exist_ok=True)
+    for leftover in os.listdir(point):
+        os.remove(os.path.join(point, leftover))
+    return point
+
+
+def data_pages(result, page):
+    """(pages that hold dataset bytes, pages of the whole file) of a result file."""
+    touched = set()
+
+    def visit(_, item):
+        if isinstance(item, h5py.Dataset) and item.id.get_storage_size() > 0:
+            start = item.id.get_offset()
+            end = start + item.id.get_storage_size()
+            touched.update(range(start // page, (end - 1) // page + 1))
+
+    with h5py.File(result, "r") as f:
+        f.visititems(visit)
+    return len(touched), -(-os.path.getsize(result) // page)
+
+
+def metadata(folder):
+    """The disk fills during the final metadata flush. HDF5 writes the datasets'
+    bytes as they come and its own metadata (superblock, object headers, heaps,
+    attributes) when the file is closed; a tmpfs allocates only the pages written.
+    A tmpfs of as many pages as the datasets' bytes touch takes every dataset
+    write and not the whole file: only the flush at close can find it full. The
+    pages come from the same solve written to a roomy folder (its layout, read
+    with h5py); the failure's message then shows that it came at the close."""
+    chain = os.path.join(folder, "chain.h5")
+    before = checksum(chain)
+    roomy = os.path.join(folder, "roomy.h5")
+    done = e2e.run(["solve", chain, "-o", roomy, "--method", "linear", "--tol", TOL, "-q"])
+    if not check(done.returncode == 0, f"the reference solve failed: {done.stderr}"):
+        return True
+    page = os.sysconf("SC_PAGE_SIZE")
+    pages, file_pages = data_pages(roomy, page)
+    print(f"  datasets touch {pages} pages of {page} bytes, the whole file {file_pages}")
+    if not check(pages < file_pages,
+                 "every page of the result holds dataset bytes: this chain cannot make the "
+                 "flush fail alone"):
+        return True
+    full = fresh_mount_point(folder, "metadata-full")
+    mounted = subprocess.run(["mount", "-t", "tmpfs", "-o", f"size={pages * page}", "tmpfs",
+                              full], capture_output=True, text=True).returncode == 0
+    if not mounted:
+        print("  SKIPPED: mounting a tmpfs is not allowed here; the metadata flush case needs "
+              "one")
+        return False
+    try:
+        for ranks in (1, 2):
+            done = write_onto_full_disk(folder, full, ranks)
+            check_clean_failure(done, full, ranks, os.strerror(errno.ENOSPC))
+            # Every dataset fitted: it was the end of the write that found the disk full.
+            check("cannot finish writing the file" in done.stderr,
+                  f"{ranks} rank(s): the failure was not at the final flush: {done.stderr}")
+    finally:
+        subprocess.run(["umount", full], check=False)
+    check(checksum(chain) == before, "the input chain file changed")
+    return True
 
 
 def main():
@@ -383,8 +462,13 @@ def main():
         sigkill(folder)
     elif mode == "sigterm":
         sigterm(folder)
-    elif mode == "diskfull":
-        diskfull(folder)
+    elif mode in ("diskfull", "metadata"):
+        ran_real_case = diskfull(folder) if mode == "diskfull" else metadata(folder)
+        status = e2e.finish(f"faults {mode}")
+        if status == 0 and not ran_real_case:
+            print(f"faults {mode}: skipped (no tmpfs could be mounted)")
+            return SKIPPED
+        return status
     else:
         raise SystemExit(f"unknown mode {mode}")
     return e2e.finish(f"faults {mode}")
