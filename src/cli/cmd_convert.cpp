@@ -113,9 +113,11 @@ Action add_convert(CLI::App& app) {
     sub->add_option("--kind", o->kind, "ctmc (rates) or dtmc (probabilities), for .mtx input")
         ->check(CLI::IsMember({"ctmc", "dtmc"}));
     add_validation_options(sub, o->validation);
-    sub->add_option("--chunk", o->chunk, "HDF5 chunk length in elements (0: contiguous)")
+    sub->add_option("--chunk", o->chunk,
+                    "HDF5 chunk length in elements (0: 131072); every chunk carries a checksum "
+                    "that each read verifies")
         ->default_val(0);
-    sub->add_option("--deflate", o->deflate, "deflate level 1-9 for chunked output (0: none)")
+    sub->add_option("--deflate", o->deflate, "deflate level 1-9 (0: none)")
         ->default_val(0)
         ->check(CLI::Range(0, 9));
     return [o](MPI_Comm comm) { return convert(comm, *o); };
