@@ -530,6 +530,16 @@ Handle create_dataset(hid_t loc, const std::string& name, hid_t filetype, std::u
     hsize_t n = length;
     Handle space(H5Screate_simple(1, &n, nullptr), H5Sclose);
     Handle dcpl(H5Pcreate(H5P_DATASET_CREATE), H5Pclose);
+    // Parallel HDF5 (1.10) writes filtered chunks through a collective path that
+    // does not return on every rank when one rank's write fails (a full disk then
+    // hangs the job instead of ending it with exit 6). Files written by several
+    // ranks at once keep the contiguous layout, whose failures settle_write agrees.
+    const FileComm comm(loc);
+    int ranks = 1;
+    if (comm.get())
+        MPI_Comm_size(*comm.get(), &ranks);
+    if (ranks > 1)
+        layout = Layout{0, 0, false};
     const bool chunked = layout.checksum || layout.deflate > 0 || layout.chunk > 0;
     if (chunked && length > 0) {
         hsize_t chunk =

@@ -142,9 +142,10 @@ std::vector<T> read_range(hid_t dataset, std::uint64_t offset, std::uint64_t cou
     return out;
 }
 
-// Every dataset longrun writes is chunked and carries a Fletcher32 checksum per
-// chunk, which HDF5 verifies on every read: a bit flipped on disk or in transfer
-// is refused instead of solved. 2^17 elements make chunks of 1 MiB for 8-byte
+// Every dataset longrun writes from one process is chunked and carries a
+// Fletcher32 checksum per chunk, which HDF5 verifies on every read: a bit flipped
+// on disk or in transfer is refused instead of solved (files written by several
+// ranks at once stay contiguous: see create_dataset). 2^17 elements make chunks of 1 MiB for 8-byte
 // values, as large as HDF5's default chunk cache, so a rank's partial first and
 // last chunk are each read and verified once.
 inline constexpr std::uint64_t default_chunk = std::uint64_t{1} << 17;

@@ -8,8 +8,9 @@ Usage: chain_hash.py FOLDER
 A model with every part the hash covers (jobs/models/help-desk.yaml: events and
 their labels, state variables with bounds, measures, event intensities) is
 generated, solved on 1 and on 2 ranks, and checkpointed; each result and the
-checkpoint must record the hash computed here, and every dataset of the chain,
-the results and the checkpoint must be chunked with a Fletcher32 checksum.
+checkpoint must record the hash computed here, and every dataset of the chain
+and of the 1-rank result must be chunked with a Fletcher32 checksum (files
+written by several ranks at once are contiguous, see README "Checksums").
 """
 
 import os
@@ -163,26 +164,34 @@ def main():
     expected = content_hash(chain)
     print(f"hash from the file, computed here: {expected}")
 
-    files = [chain]
+    files = [chain]  # with checksums
+    parallel = []    # written by 2 ranks at once: contiguous, see below
     for ranks in (1, 2):
         result = os.path.join(folder, f"result_np{ranks}.h5")
         done = run(["solve", chain, "-o", result, "-q"], ranks=ranks)
         if check(done.returncode == 0, f"solve on {ranks} rank(s): exit {done.returncode}"):
             check(recorded(result) == expected,
                   f"{result}: chain_hash {recorded(result)}, computed here {expected}")
-            files.append(result)
+            (files if ranks == 1 else parallel).append(result)
     checkpoint = os.path.join(folder, "ck.h5")
     done = run(["solve", chain, "-q", "--method", "gth", "--tol", "1e-30",
                 "--checkpoint", checkpoint], ranks=2)
     if check(os.path.exists(checkpoint), f"no checkpoint written (exit {done.returncode})"):
         check(recorded(checkpoint) == expected,
               f"{checkpoint}: chain_hash {recorded(checkpoint)}, computed here {expected}")
-        files.append(checkpoint)
+        parallel.append(checkpoint)
 
     for path in files:
         for name, chunked, fletcher in datasets(path):
             check(chunked and fletcher, f"{path}: /{name} has no checksum "
                                         f"(chunked {chunked}, fletcher32 {fletcher})")
+    # Parallel HDF5 1.10 hangs the other ranks when one rank's filtered write fails
+    # (a full disk), so files written by several ranks stay contiguous for now.
+    # When that changes, this check says so.
+    for path in parallel:
+        for name, chunked, fletcher in datasets(path):
+            check(not fletcher, f"{path}: /{name} now has a checksum: update README and "
+                                "io/hdf5.cpp (create_dataset) together")
     return finish("chain_hash")
 
 
