@@ -364,12 +364,14 @@ void add_common(CLI::App* sub, Common& common) {
     sub->add_option("-o,--output", common.output, "chain file to write (HDF5, schema v1)")
         ->required();
     sub->add_option("--chunk", common.layout.chunk,
-                    "HDF5 chunk length in elements for every dataset (0: contiguous)")
+                    "HDF5 chunk length in elements for every dataset (0: longrun's default)")
         ->capture_default_str();
-    sub->add_option("--deflate", common.layout.deflate,
-                    "deflate level 1-9 for chunked datasets (0: none; needs --chunk)")
+    sub->add_option("--deflate", common.layout.deflate, "deflate level 1-9 (0: none)")
         ->check(CLI::Range(0, 9))
         ->capture_default_str();
+    sub->add_flag("--no-checksum{false}", common.layout.checksum,
+                  "no Fletcher32 checksums (to measure what they cost); with neither --chunk "
+                  "nor --deflate the datasets are then contiguous");
 }
 
 const CLI::Validator positive_rate(
@@ -557,9 +559,6 @@ int run(int argc, char** argv) {
         (void)app.exit(e);
         return static_cast<int>(longrun::ExitCode::usage);
     }
-    if (common.layout.deflate > 0 && common.layout.chunk == 0)
-        throw longrun::UsageError("--deflate needs --chunk (HDF5 compresses chunks only)");
-
     const auto start = std::chrono::steady_clock::now();
     const Chain chain = build();
     longrun::io::write_chain_file(common.output, chain, common.layout);

@@ -50,6 +50,9 @@ struct Chain {
     std::vector<std::pair<std::string, double>> parameters;
     std::vector<Measure> event_intensities; // Measure::name = event name
     std::string model_file, model_text;     // the description it was generated from
+    // Of the whole chain as read from its file (io/chain_hash.hpp); empty for a
+    // chain built in memory (Matrix Market, generate) until it is written and read.
+    std::string content_hash;
 
     std::uint64_t local_rows() const noexcept { return rows.size(); }
     std::uint64_t local_transitions() const noexcept { return targets.size(); }

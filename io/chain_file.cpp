@@ -1,6 +1,7 @@
 #include "chain_file.hpp"
 
 #include "atomic_output.hpp"
+#include "chain_hash.hpp"
 #include "format.hpp"
 
 #include <algorithm>
@@ -581,6 +582,8 @@ Chain read_chain_slice(const ChainHeader& h, RowRange rows, MPI_Comm comm,
     c.model_file = h.model_file;
     c.model_text = h.model_text;
     agree_or_throw(comm, fault);
+    // Here, from the values as read: validation may rescale rounded dtmc rows.
+    c.content_hash = chain_content_hash(c, comm);
 
     ValidationReport local;
     agree_or_throw(comm, validate_slice(c, file, options, local));

@@ -128,7 +128,9 @@ hid_t native_type() {
 }
 
 // Reads elements [offset, offset + count) of a 1-d dataset. With Access::collective
-// every rank of the file's communicator must call, also with count == 0.
+// every rank of the file's communicator must call, also with count == 0. A chunk
+// that fails its checksum is InputError naming the file, the dataset and the
+// elements, as damage (not as a format problem).
 void read_range(hid_t dataset, hid_t memtype, std::uint64_t offset, std::uint64_t count, void* out,
                 Access access, const std::string& file, const std::string& name);
 
@@ -140,9 +142,20 @@ std::vector<T> read_range(hid_t dataset, std::uint64_t offset, std::uint64_t cou
     return out;
 }
 
+// Every dataset longrun writes from one process is chunked and carries a
+// Fletcher32 checksum per chunk, which HDF5 verifies on every read: a bit flipped
+// on disk or in transfer is refused instead of solved (files written by several
+// ranks at once stay contiguous: see create_dataset). 2^17 elements make chunks of 1 MiB for 8-byte
+// values, as large as HDF5's default chunk cache, so a rank's partial first and
+// last chunk are each read and verified once.
+inline constexpr std::uint64_t default_chunk = std::uint64_t{1} << 17;
+
 struct Layout {
-    std::uint64_t chunk = 0; // 0: contiguous
-    int deflate = 0;         // 0: no compression; 1-9 with chunk > 0
+    std::uint64_t chunk = 0; // elements per chunk; 0: default_chunk
+    int deflate = 0;         // 0: no compression; 1-9
+    // Off only to measure what the checksums cost (benchmarks); without a
+    // checksum, deflate or chunk length the dataset is stored contiguous.
+    bool checksum = true;
 };
 
 Handle create_dataset(hid_t loc, const std::string& name, hid_t filetype, std::uint64_t length,

@@ -1,6 +1,7 @@
 #include "iterate_file.hpp"
 
 #include "atomic_output.hpp"
+#include "chain_hash.hpp"
 #include "hdf5.hpp"
 #include "mpi_agree.hpp"
 
@@ -19,6 +20,10 @@ void write_checkpoint(const std::string& path, MPI_Comm comm, const CheckpointIn
         h5::Handle f = h5::create_for_writing(out.temporary(), comm);
         h5::write_attribute(f, "schema", std::string(checkpoint_schema), path);
         h5::write_attribute(f, "chain_path", info.chain_path, path);
+        if (!info.chain_hash.empty()) {
+            h5::write_attribute(f, "chain_hash", info.chain_hash, path);
+            h5::write_attribute(f, "chain_hash_method", std::string(chain_hash_method), path);
+        }
         h5::write_attribute(f, "states", info.states, path);
         h5::write_attribute(f, "transitions", info.transitions, path);
         h5::write_attribute(f, "method", info.method, path);
@@ -52,6 +57,8 @@ CheckpointInfo read_checkpoint_info(const std::string& path, MPI_Comm comm) {
                          ? "a result file, not a checkpoint (--start warm-starts from a result)"
                          : "not a longrun checkpoint (schema '" + schema + "')");
         info.chain_path = h5::read_string_attribute(f, "chain_path", path, "/");
+        if (h5::has_attribute(f, "chain_hash"))
+            info.chain_hash = h5::read_string_attribute(f, "chain_hash", path, "/");
         info.states = h5::read_u64_attribute(f, "states", path, "/");
         info.transitions = h5::read_u64_attribute(f, "transitions", path, "/");
         info.method = h5::read_string_attribute(f, "method", path, "/");
@@ -62,6 +69,26 @@ CheckpointInfo read_checkpoint_info(const std::string& path, MPI_Comm comm) {
     }
     agree_or_throw(comm, fault);
     return info;
+}
+
+std::string read_recorded_chain_hash(const std::string& path, MPI_Comm comm) {
+    std::string hash;
+    std::optional<LocalFault> fault;
+    if (comm_rank(comm) == 0) {
+        try {
+            h5::Handle f = h5::open_for_reading(path, std::nullopt);
+            if (h5::has_attribute(f, "chain_hash"))
+                hash = h5::read_string_attribute(f, "chain_hash", path, "/");
+        } catch (const Error& e) {
+            fault = LocalFault{0, e.code(), e.what()};
+        }
+    }
+    agree_or_throw(comm, fault);
+    std::uint64_t length = hash.size();
+    MPI_Bcast(&length, 1, MPI_UINT64_T, 0, comm);
+    hash.resize(length);
+    MPI_Bcast(hash.data(), static_cast<int>(length), MPI_CHAR, 0, comm);
+    return hash;
 }
 
 std::vector<double> read_distribution_slice(const std::string& path, MPI_Comm comm, RowRange rows,

@@ -18,6 +18,7 @@ inline constexpr const char* checkpoint_schema = "longrun.checkpoint";
 
 struct CheckpointInfo {
     std::string chain_path;
+    std::string chain_hash; // io/chain_hash.hpp; empty in checkpoints from before it
     std::uint64_t states = 0;
     std::uint64_t transitions = 0;
     std::string method; // the method that produced the iterate
@@ -37,6 +38,10 @@ CheckpointInfo read_checkpoint_info(const std::string& path, MPI_Comm comm);
 // checkpoint), checked against the chain's size: InputError (agreed) naming the
 // file and the first bad row. Entries must be finite and >= 0; they need not sum
 // to 1 exactly (a checkpoint of an unfinished solve), but must have positive sum.
+// Collective. The root attribute chain_hash of a result or checkpoint, empty when
+// the file has none (written before longrun recorded it, or by another tool).
+std::string read_recorded_chain_hash(const std::string& path, MPI_Comm comm);
+
 std::vector<double> read_distribution_slice(const std::string& path, MPI_Comm comm, RowRange rows,
                                             std::uint64_t states);
 

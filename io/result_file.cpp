@@ -33,6 +33,10 @@ void write_result_file(const std::string& path, MPI_Comm comm, const ResultConte
         h5::write_attribute(f, "chain_path", content.origin.chain_path, file);
         h5::write_attribute(f, "chain_bytes", content.origin.chain_bytes, file);
         h5::write_attribute(f, "chain_mtime", content.origin.chain_mtime, file);
+        if (!content.origin.chain_hash.empty()) {
+            h5::write_attribute(f, "chain_hash", content.origin.chain_hash, file);
+            h5::write_attribute(f, "chain_hash_method", content.origin.chain_hash_method, file);
+        }
         h5::write_attribute(f, "tool_version", content.origin.tool_version, file);
         h5::write_attribute(f, "kind", content.origin.kind, file);
         if (content.has_distribution) {

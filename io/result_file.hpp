@@ -24,6 +24,8 @@ struct ResultOrigin {
     std::int64_t chain_mtime = 0; // seconds since the epoch
     std::string tool_version;
     std::string kind;
+    // io/chain_hash.hpp; empty in results written before longrun recorded it.
+    std::string chain_hash, chain_hash_method;
 };
 
 struct CertificateRecord {

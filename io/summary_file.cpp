@@ -477,6 +477,11 @@ ResultInfo read_result_info(const std::string& path) {
     // Stored as i64; a double holds every second of the next 285 million years.
     o.chain_mtime = static_cast<std::int64_t>(h5::read_f64_attribute(f, "chain_mtime", path, "/"));
     o.kind = h5::read_string_attribute(f, "kind", path, "/");
+    if (h5::has_attribute(f, "chain_hash")) {
+        o.chain_hash = h5::read_string_attribute(f, "chain_hash", path, "/");
+        if (h5::has_attribute(f, "chain_hash_method"))
+            o.chain_hash_method = h5::read_string_attribute(f, "chain_hash_method", path, "/");
+    }
     if (h5::has_attribute(f, "tool_version"))
         o.tool_version = h5::read_string_attribute(f, "tool_version", path, "/");
 

@@ -121,10 +121,12 @@ Action add_convert(CLI::App& app) {
                   "the .mtx input holds the transposed matrix (P^T or Q^T): column j lists the "
                   "transitions out of state j, so columns, not rows, sum to 1 (or 0)");
     add_validation_options(sub, o->validation);
-    sub->add_option("--chunk", o->chunk, "HDF5 chunk length in elements (0: contiguous)")
+    sub->add_option("--chunk", o->chunk,
+                    "HDF5 chunk length in elements (0: 131072); every chunk carries a checksum "
+                    "that each read verifies")
         ->default_val(0)
         ->check(whole_number_in(0, longest_chunk));
-    sub->add_option("--deflate", o->deflate, "deflate level 1-9 for chunked output (0: none)")
+    sub->add_option("--deflate", o->deflate, "deflate level 1-9 (0: none)")
         ->default_val(0)
         ->check(whole_number_in(0, 9));
     return [o](MPI_Comm comm) { return convert(comm, *o); };

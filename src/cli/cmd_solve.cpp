@@ -51,6 +51,8 @@ int solve_command(MPI_Comm comm, SolveOptions& o) {
         throw UsageError("--from and --from-distribution go with --per-class");
     if (o.start_state && o.start_distribution)
         throw UsageError("give either --from or --from-distribution, not both");
+    if (o.request.warm_start_other_chain && !o.warm_start)
+        throw UsageError("--start-other-chain goes with --start FILE");
     if (o.warm_start && o.resume)
         throw UsageError("give either --start (an earlier result) or --resume (a checkpoint)");
     std::vector<std::string> written;
@@ -97,7 +99,8 @@ Action add_solve(CLI::App& app) {
         "  longrun solve chain.h5 -o result.h5\n"
         "  mpirun -n 4 longrun solve chain.h5 -o result.h5 --method linear --tol 1e-12\n"
         "Long runs: --checkpoint ck.h5 --checkpoint-every 600, then after a crash or a time\n"
-        "limit the same command with --resume ck.h5. Sweeps: --start previous-result.h5.\n"
+        "limit the same command with --resume ck.h5. Sweeps: --start previous-result.h5\n"
+        "--start-other-chain.\n"
         "Methods (--method NAME, or a comma list tried in order; PETSc/SLEPc options after a\n"
         "lone -- with the method's prefix, e.g. -- -linear_ksp_type bcgs):\n" +
             methods_help());
@@ -137,8 +140,8 @@ Action add_solve(CLI::App& app) {
                     "distribution");
     sub->add_option("--start", o->warm_start,
                     "warm start: begin from /distribution of an earlier result (or checkpoint) "
-                    "of a chain with the same states, e.g. the previous point of a parameter "
-                    "sweep")
+                    "of this chain (its recorded content hash must match; see "
+                    "--start-other-chain)")
         ->check([](const std::string& v) -> std::string {
             if (!v.empty() && v.find_first_not_of("0123456789") == std::string::npos)
                 return "--start takes a result file to warm-start from; for the start state "
@@ -146,6 +149,10 @@ Action add_solve(CLI::App& app) {
                        v;
             return "";
         });
+    sub->add_flag("--start-other-chain", o->request.warm_start_other_chain,
+                  "let --start begin from a result of another chain with the same number of "
+                  "states, e.g. the previous point of a parameter sweep (the certificate still "
+                  "judges the answer)");
     sub->add_option("--checkpoint", o->checkpoint,
                     "write the current iterate to this HDF5 file while solving (atomically: a "
                     "crash never leaves a half-written checkpoint)");

@@ -3,6 +3,7 @@
 #include "structure_report.hpp"
 
 #include "io/chain_file.hpp"
+#include "io/chain_hash.hpp"
 #include "io/iterate_file.hpp"
 #include "io/mpi_agree.hpp"
 #include "io/mpi_gather.hpp"
@@ -128,7 +129,9 @@ std::vector<ReplicationResult> gather_everywhere(MPI_Comm comm,
 // finds it: means under /distribution and long-run event rates. Serial (the
 // whole chain is here): the calls run on MPI_COMM_SELF.
 std::map<std::pair<std::string, std::string>, double> solved_values(const io::Chain& chain,
-                                                                    const std::string& result) {
+                                                                    const std::string& chain_path,
+                                                                    const std::string& result,
+                                                                    bool& hash_recorded) {
     const io::ResultInfo info = io::read_result_info(result);
     if (!info.has_distribution)
         throw InputError(
@@ -139,6 +142,12 @@ std::map<std::pair<std::string, std::string>, double> solved_values(const io::Ch
         throw InputError(fmt::format("--against {}: {} states, but the chain has {}; is it a "
                                      "result of this chain?",
                                      result, info.states, chain.states));
+    const auto match = io::match_chain(info.origin.chain_hash, chain.content_hash);
+    if (match == io::ChainMatch::differs)
+        throw InputError(io::chain_changed_message("--against " + result, info.origin.chain_hash,
+                                                   chain_path, chain.content_hash,
+                                                   "simulate the chain that was solved"));
+    hash_recorded = match != io::ChainMatch::not_recorded;
     const std::vector<double> pi =
         io::read_distribution_slice(result, MPI_COMM_SELF, chain.rows, chain.states);
     const summary::StateTable table(chain);
@@ -257,8 +266,15 @@ SimulateReport run_simulation(MPI_Comm comm, const SimulateRequest& request) {
 
     // Before the long part: a result that cannot be compared is found now.
     std::map<std::pair<std::string, std::string>, double> solved;
-    if (request.against)
-        agree_on_local_work(comm, [&] { solved = solved_values(chain, *request.against); });
+    if (request.against) {
+        bool hash_recorded = true;
+        agree_on_local_work(comm, [&] {
+            solved = solved_values(chain, request.chain_path, *request.against, hash_recorded);
+        });
+        if (!hash_recorded)
+            io::note_unrecorded_chain(comm, *request.against, "written by an older longrun",
+                                      "its number of states");
+    }
 
     simulate::SimulationSettings settings;
     settings.length = request.length;

@@ -1,6 +1,7 @@
 #include "solve_pipeline.hpp"
 
 #include "checkpoint.hpp"
+#include "io/chain_hash.hpp"
 #include "io/hdf5.hpp"
 #include "io/iterate_file.hpp"
 #include "load.hpp"
@@ -52,6 +53,8 @@ io::ResultContent result_content(const SolveReport& r, const std::string& chain_
     c.origin.chain_path = chain_path;
     c.origin.tool_version = LONGRUN_VERSION;
     c.origin.kind = io::to_string(r.kind);
+    c.origin.chain_hash = r.chain_hash;
+    c.origin.chain_hash_method = io::chain_hash_method;
     struct stat st {};
     if (::stat(chain_path.c_str(), &st) == 0) {
         c.origin.chain_bytes = static_cast<std::uint64_t>(st.st_size);
@@ -375,6 +378,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     const io::Chain& chain = loaded.chain;
     phase_done("read");
     report.chain_path = request.chain_path;
+    report.chain_hash = chain.content_hash;
     report.kind = chain.kind;
     report.states = chain.states;
     report.transitions = chain.transitions;
@@ -465,6 +469,22 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
                 e.mark_agreed();
                 throw e;
             }
+            // A resumed iterate carries on one solve of one chain: it must be this one.
+            switch (io::match_chain(info.chain_hash, chain.content_hash)) {
+            case io::ChainMatch::differs: {
+                InputError e(io::chain_changed_message(*request.resume, info.chain_hash,
+                                                       request.chain_path, chain.content_hash,
+                                                       "delete the checkpoint to start afresh"));
+                e.mark_agreed();
+                throw e;
+            }
+            case io::ChainMatch::not_recorded:
+                io::note_unrecorded_chain(comm, *request.resume, "an older checkpoint",
+                                          "its number of states and transitions");
+                break;
+            case io::ChainMatch::same:
+                break;
+            }
             elapsed_before = info.elapsed_seconds;
             start_file = request.resume;
             report.start_from =
@@ -473,6 +493,26 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
         } else {
             report.start_from =
                 fmt::format("no checkpoint at {} yet: started from the beginning", *request.resume);
+        }
+    }
+    if (request.warm_start && !request.resume) {
+        const std::string recorded = io::read_recorded_chain_hash(*request.warm_start, comm);
+        switch (io::match_chain(recorded, chain.content_hash)) {
+        case io::ChainMatch::differs:
+            if (!request.warm_start_other_chain) {
+                InputError e(io::chain_changed_message(
+                    *request.warm_start, recorded, request.chain_path, chain.content_hash,
+                    "--start-other-chain warm-starts from another chain's result anyway"));
+                e.mark_agreed();
+                throw e;
+            }
+            break;
+        case io::ChainMatch::not_recorded:
+            io::note_unrecorded_chain(comm, *request.warm_start, "older, or not from longrun",
+                                      "its number of states");
+            break;
+        case io::ChainMatch::same:
+            break;
         }
     }
     if (start_file && !several) {
@@ -500,6 +540,7 @@ SolveReport run_solve(MPI_Comm comm, const SolveRequest& request) {
     {
         io::CheckpointInfo info;
         info.chain_path = request.chain_path;
+        info.chain_hash = chain.content_hash;
         info.states = chain.states;
         info.transitions = chain.transitions;
         info.elapsed_seconds = elapsed_before;

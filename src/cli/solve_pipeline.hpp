@@ -40,9 +40,11 @@ struct SolveRequest {
     // the long-run mixture. One state, or a file with a /distribution dataset.
     std::optional<std::uint64_t> start_state;
     std::optional<std::string> start_distribution;
-    // Warm start: /distribution of an earlier result or checkpoint for a chain with
-    // the same states (parameter sweeps).
+    // Warm start: /distribution of an earlier result or checkpoint of this chain.
     std::optional<std::string> warm_start;
+    // Also from a result of another chain with as many states (the previous point
+    // of a parameter sweep); otherwise such a warm start is refused.
+    bool warm_start_other_chain = false;
     // Write the current iterate to this file every `checkpoint_every` seconds.
     std::optional<std::string> checkpoint;
     double checkpoint_every = 300;
@@ -76,6 +78,7 @@ struct ClassOutcome {
 
 struct SolveReport {
     std::string chain_path;
+    std::string chain_hash; // io/chain_hash.hpp, recorded in the result
     io::ChainKind kind = io::ChainKind::ctmc;
     std::uint64_t states = 0, transitions = 0;
     int ranks = 1;

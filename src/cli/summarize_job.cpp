@@ -2,6 +2,7 @@
 
 #include "load.hpp"
 
+#include "io/chain_hash.hpp"
 #include "io/iterate_file.hpp"
 #include "io/mpi_agree.hpp"
 #include "io/summary_file.hpp"
@@ -160,6 +161,23 @@ SummaryReport run_summary(MPI_Comm comm, const SummaryRequest& request) {
         throw InputError(fmt::format("{}: {} states, but the result {} has {}; is it the chain "
                                      "that was solved?",
                                      chain_path, chain.states, request.result_path, info.states));
+    // The same on every rank: the hash is reduced over all of them.
+    switch (io::match_chain(info.origin.chain_hash, chain.content_hash)) {
+    case io::ChainMatch::differs: {
+        InputError e(io::chain_changed_message(request.result_path, info.origin.chain_hash,
+                                               chain_path, chain.content_hash,
+                                               "solve it again, or name the solved chain with "
+                                               "--chain"));
+        e.mark_agreed();
+        throw e;
+    }
+    case io::ChainMatch::not_recorded:
+        io::note_unrecorded_chain(comm, request.result_path, "written by an older longrun",
+                                  "its number of states");
+        break;
+    case io::ChainMatch::same:
+        break;
+    }
     report.kind = io::to_string(chain.kind);
     report.states = chain.states;
     report.transitions = chain.transitions;

@@ -446,8 +446,11 @@ SweepTable run_sweep(MPI_Comm comm, const SweepRequest& request) {
         // The solve reads a warm start with the chain's own state count and refuses
         // any other; a sweep whose state space grows starts such points cold.
         const bool warm = previous_result && previous_states == states;
-        if (warm)
+        if (warm) {
+            // The previous point's chain, by design: other parameters, as many states.
             solve.warm_start = previous_result;
+            solve.warm_start_other_chain = true;
+        }
         SweepRow row;
         row.index = index;
         row.value = value;

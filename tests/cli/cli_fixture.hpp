@@ -74,6 +74,50 @@ inline constexpr std::size_t row3 = 9; // first entry of row 3
 inline constexpr std::size_t row4 = 12;
 inline constexpr std::size_t row1 = 3;
 
+// Where element `index` of a dataset is stored in the file: contiguous, or (as
+// longrun writes them) chunked without compression.
+inline std::uint64_t data_address(const fs::path& p, const char* dataset, std::uint64_t index = 0) {
+    const hid_t f = H5Fopen(p.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
+    const hid_t d = H5Dopen2(f, dataset, H5P_DEFAULT);
+    const hid_t type = H5Dget_type(d);
+    const std::uint64_t width = H5Tget_size(type);
+    haddr_t a = H5Dget_offset(d);
+    if (a != HADDR_UNDEF) {
+        a += index * width;
+    } else {
+        const hid_t dcpl = H5Dget_create_plist(d);
+        hsize_t chunk = 0;
+        const hid_t space = H5Dget_space(d);
+        hsize_t origin[1] = {0}, size = 0;
+        unsigned mask = 0;
+        if (H5Pget_chunk(dcpl, 1, &chunk) == 1 && chunk > 0 &&
+            H5Dget_chunk_info(d, space, index / chunk, origin, &mask, &a, &size) >= 0 &&
+            a != HADDR_UNDEF)
+            a += (index % chunk) * width;
+        H5Sclose(space);
+        H5Pclose(dcpl);
+    }
+    H5Tclose(type);
+    H5Dclose(d);
+    H5Fclose(f);
+    if (a == HADDR_UNDEF)
+        throw std::runtime_error(std::string("no data address for ") + dataset);
+    return a;
+}
+
+// Damage after the write: one bit of one stored byte inverted.
+inline void flip_bit(const fs::path& p, std::uint64_t at) {
+    std::fstream file(p, std::ios::in | std::ios::out | std::ios::binary);
+    file.seekg(static_cast<std::streamoff>(at));
+    char byte = 0;
+    file.read(&byte, 1);
+    byte = static_cast<char>(byte ^ 0x01);
+    file.seekp(static_cast<std::streamoff>(at));
+    file.write(&byte, 1);
+    if (!file)
+        throw std::runtime_error("cannot flip a byte of " + p.string());
+}
+
 // Raw edits of a finished file: what another tool, or a bug, could leave.
 class RawFile {
   public:

@@ -63,18 +63,6 @@ Chain with_state_variable(bool integral) {
     return c;
 }
 
-// Where a contiguous dataset's elements start in the file.
-std::uint64_t data_address(const fs::path& p, const char* dataset) {
-    const hid_t f = H5Fopen(p.c_str(), H5F_ACC_RDONLY, H5P_DEFAULT);
-    const hid_t d = H5Dopen2(f, dataset, H5P_DEFAULT);
-    const haddr_t a = H5Dget_offset(d);
-    H5Dclose(d);
-    H5Fclose(f);
-    if (a == HADDR_UNDEF)
-        throw std::runtime_error(std::string("no data address for ") + dataset);
-    return a;
-}
-
 std::string random_bytes(std::size_t n, bool newlines) {
     std::mt19937 gen(20240611);
     std::string s(n, '\0');

@@ -235,17 +235,38 @@ TEST_F(SimulateJob, TwoClosedClassesFromATransientStartAreReportedNotPooled) {
     EXPECT_NE(text.find("absorbed"), std::string::npos);
     EXPECT_EQ(report.exit_code, 0); // nothing to compare with: a finding, not a failure
 
-    // Against a result of the same size (here of a 4-state cycle, since this chain
-    // has no unique solution): not compared, and exit 5, for no single long-run
-    // distribution describes this start.
-    const auto cycle = write(io::chain_from_triples(io::ChainKind::ctmc, 4, {0, 1, 2, 3},
-                                                    {1, 2, 3, 0}, {1.0, 1.0, 1.0, 1.0}),
-                             "cycle.h5");
-    r.against = solved(cycle, "cycle-result.h5");
+    // Against a result of this chain (solved class by class from state 0): not
+    // compared, and exit 5, for no single long-run distribution describes this start.
+    {
+        cli::SolveRequest s;
+        s.chain_path = path;
+        s.output = folder + "/per-class.h5";
+        s.per_class = true;
+        s.start_state = 0;
+        s.progress = false;
+        (void)cli::run_solve(MPI_COMM_WORLD, s);
+        MPI_Barrier(MPI_COMM_WORLD);
+        r.against = s.output;
+    }
     const auto against = cli::run_simulation(MPI_COMM_WORLD, r);
     EXPECT_EQ(against.exit_code, 5);
     EXPECT_TRUE(against.pooled.empty());
     EXPECT_NE(against.verdict.find("was not compared"), std::string::npos) << against.verdict;
+
+    // A result of another chain with as many states (a 4-state cycle) is refused
+    // before anything is simulated: bad input naming both files.
+    const auto cycle = write(io::chain_from_triples(io::ChainKind::ctmc, 4, {0, 1, 2, 3},
+                                                    {1, 2, 3, 0}, {1.0, 1.0, 1.0, 1.0}),
+                             "cycle.h5");
+    r.against = solved(cycle, "cycle-result.h5");
+    try {
+        (void)cli::run_simulation(MPI_COMM_WORLD, r);
+        ADD_FAILURE() << "a result of another chain was compared";
+    } catch (const Error& e) {
+        EXPECT_EQ(e.code(), ExitCode::bad_input);
+        EXPECT_NE(std::string(e.what()).find("cycle-result.h5"), std::string::npos) << e.what();
+        EXPECT_NE(std::string(e.what()).find("two-classes.h5"), std::string::npos) << e.what();
+    }
 }
 
 // Replication r runs on rank r % size, yet every number is what one process alone

@@ -21,7 +21,8 @@ class SummarizeJob : public MpiTest {
         const std::string path = folder + "/result.h5";
         if (rank == 0) {
             io::ResultContent content;
-            content.origin = {chain_path, 0, 0, "test", "ctmc"};
+            // No content hash: paired with the chain by its number of states.
+            content.origin = {chain_path, 0, 0, "test", "ctmc", "", ""};
             content.certificate.method = "closed form";
             content.certificate.converged = true;
             content.certificate.residual_definition = "||pi Q||_1 / max_i |q_ii|";

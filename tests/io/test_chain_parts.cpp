@@ -199,7 +199,9 @@ std::string slurp(const std::string& path) {
 
 io::ResultContent result_content() {
     io::ResultContent r;
-    r.origin = {"chains/queue.h5", 123456, 1700000000, "test", "ctmc"};
+    r.origin = {
+        "chains/queue.h5", 123456, 1700000000, "test", "ctmc", "0123456789abcdef0123456789abcdef",
+        "test rule"};
     auto& c = r.certificate;
     c.method = "linear";
     c.trace = {"power: stalled", "linear: certified"};
@@ -384,6 +386,8 @@ TEST_F(ChainParts, ResultInfoReadsTheSmallParts) {
     EXPECT_EQ(info.origin.chain_bytes, expected.origin.chain_bytes);
     EXPECT_EQ(info.origin.chain_mtime, expected.origin.chain_mtime);
     EXPECT_EQ(info.origin.kind, "ctmc");
+    EXPECT_EQ(info.origin.chain_hash, expected.origin.chain_hash);
+    EXPECT_EQ(info.origin.chain_hash_method, expected.origin.chain_hash_method);
     const auto& c = info.certificate;
     EXPECT_EQ(c.method, "linear");
     EXPECT_EQ(c.residual, 3.5e-13);
