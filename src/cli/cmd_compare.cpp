@@ -142,9 +142,11 @@ Action add_compare(CLI::App& app) {
     sub->add_option("--methods", o->methods, "comma-separated methods, or all (" + names + ")")
         ->type_name("LIST")
         ->default_val("all");
-    sub->add_option("--tol", o->request.tolerance, "certificate tolerance, the same for every run")
+    sub->add_option("--tol", o->request.tolerance,
+                    "the estimated error ||pi_hat - pi||_1 a run must reach to count as "
+                    "converged, the same for every run, in (0, 1e-2]")
         ->default_val(1e-10)
-        ->check(CLI::PositiveNumber);
+        ->check(number_in(Interval::open_closed(0, 1e-2)));
     sub->add_option("--kind", o->kind,
                     "ctmc or dtmc, for Matrix Market files (chain files say their kind); "
                     "without it the kind is told from the row sums")
