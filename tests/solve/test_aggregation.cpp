@@ -125,7 +125,9 @@ TEST_F(Aggregation, LandOfOzWeatherMatchesThePrintedFixedVector) {
 TEST_F(Aggregation, RandomWalkDtmcIsProportionalToDegree) {
     // pi(v) = deg(v) / 2|E| (Levin, Peres & Wilmer, Markov Chains and Mixing
     // Times, sec. 1.4). A ring of 600 with chords: a dtmc large enough for
-    // several levels.
+    // several levels. The chords have odd length on an even ring, so the graph
+    // is bipartite and the walk has period 2 (aggregation does not mind);
+    // tests/solve/test_error_estimate.cpp has an aperiodic walk.
     std::vector<std::pair<std::uint64_t, std::uint64_t>> edges;
     const std::uint64_t n = 600;
     for (std::uint64_t v = 0; v < n; ++v)
