@@ -402,11 +402,20 @@ def data_pages(result, page):
     """(pages that hold dataset bytes, pages of the whole file) of a result file."""
     touched = set()
 
+    def add(start, size):
+        touched.update(range(start // page, (start + size - 1) // page + 1))
+
     def visit(_, item):
-        if isinstance(item, h5py.Dataset) and item.id.get_storage_size() > 0:
-            start = item.id.get_offset()
-            end = start + item.id.get_storage_size()
-            touched.update(range(start // page, (end - 1) // page + 1))
+        if not isinstance(item, h5py.Dataset) or item.id.get_storage_size() == 0:
+            return
+        if item.chunks is None:
+            add(item.id.get_offset(), item.id.get_storage_size())
+            return
+        # Results written from one rank are chunked (with checksums): every chunk
+        # is its own run of bytes.
+        for i in range(item.id.get_num_chunks()):
+            info = item.id.get_chunk_info(i)
+            add(info.byte_offset, info.size)
 
     with h5py.File(result, "r") as f:
         f.visititems(visit)
