@@ -1,5 +1,7 @@
 #include "report.hpp"
 
+#include "summary/error_bound.hpp"
+
 #include <fmt/format.h>
 
 #include <cmath>
@@ -142,11 +144,25 @@ nlohmann::json to_json(const SolveReport& r) {
     for (const auto& [phase, seconds] : r.phase_seconds)
         j["phase_seconds"].push_back({{"phase", phase}, {"seconds", seconds}});
     j["peak_memory_bytes_per_rank"] = r.peak_memory_bytes;
+    // Only a distribution with an estimated error bounds its probabilities.
+    const double bound = r.certificate.error_estimate / 2;
+    const bool bounded = r.has_distribution;
+    j["probability_error_bound"] = bounded ? finite_or_null(bound) : nlohmann::json(nullptr);
     nlohmann::json vars = nlohmann::json::array();
     for (const auto& m : r.variables) {
         nlohmann::json tail = nlohmann::json::array();
-        for (const auto& [v, p] : summary::informative_tail(m))
-            tail.push_back({{"at_least", v}, {"probability", p}});
+        for (const auto& [v, p] : summary::informative_tail(m)) {
+            nlohmann::json one = {{"at_least", v}, {"probability", p}};
+            if (bounded) {
+                const bool resolved = summary::probability_resolved(p, bound);
+                const auto tol = summary::tol_to_resolve(p);
+                one["error_bound"] = finite_or_null(bound);
+                one["resolved"] = resolved;
+                one["tol_to_resolve"] =
+                    resolved || !tol ? nlohmann::json(nullptr) : nlohmann::json(*tol);
+            }
+            tail.push_back(one);
+        }
         vars.push_back(
             {{"name", m.name},
              {"mean", m.mean},
@@ -243,16 +259,27 @@ std::string to_text(const SolveReport& r) {
     if (r.output)
         t += fmt::format("result       {}\n", *r.output);
     if (!r.variables.empty()) {
+        const std::optional<double> bound =
+            r.has_distribution ? std::optional<double>(r.certificate.error_estimate / 2)
+                               : std::nullopt;
+        bool marked = false;
         t += fmt::format("\n{:<14} {:>12} {:>12} {:>9} {:>9} {:>9} {:>9}   tail mass\n", "variable",
                          "mean", "std", "50%", "90%", "99%", "99.9%");
         for (const auto& m : r.variables) {
             std::string tail;
-            for (const auto& [v, p] : summary::informative_tail(m))
-                tail += fmt::format("  P(>={})={:.2e}", number(v, m.integral), p);
+            for (const auto& [v, p] : summary::informative_tail(m)) {
+                const std::string mark = summary::unresolved_mark(p, bound);
+                marked = marked || !mark.empty();
+                tail += fmt::format("  P(>={})={:.2e}{}", number(v, m.integral), p, mark);
+            }
             t += fmt::format("{:<14} {:>12.6g} {:>12.6g} {:>9} {:>9} {:>9} {:>9} {}\n", m.name,
                              m.mean, m.std, number(m.q50, m.integral), number(m.q90, m.integral),
                              number(m.q99, m.integral), number(m.q999, m.integral), tail);
         }
+        if (marked)
+            t += fmt::format("unresolved: below {:.1e}, twice the bound, so even the first digit "
+                             "may be wrong; solve again with the --tol shown\n",
+                             2 * *bound);
     }
     std::string cuts;
     for (const auto& c : r.truncation)
