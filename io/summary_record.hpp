@@ -62,6 +62,11 @@ struct ProbabilityRecord {
 };
 
 struct EventRateRecord {
+    EventRateRecord() = default;
+    EventRateRecord(std::string name_, std::string expression_, double rate_, std::string source_)
+        : name(std::move(name_)), expression(std::move(expression_)), rate(rate_),
+          source(std::move(source_)) {}
+
     std::string name;
     std::string expression; // empty for a labelled event; the formula of a --rate
     double rate = 0;        // ctmc: per unit time; dtmc: per step

@@ -4,6 +4,7 @@
 
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <cmath>
 
 namespace longrun::cli {
@@ -57,6 +58,19 @@ std::string partition_text(const PartitionOutcome& p) {
     line(partition::Layout::contiguous, p.contiguous);
     line(partition::Layout::graph, p.graph);
     return t;
+}
+
+// Whether the exact distribution has the same quantile `q` at `level`: the
+// tails on either side of q are farther than the bound from 1 - level.
+bool quantile_resolved(const summary::Marginal& m, double level, double q, double bound) {
+    const auto at = std::lower_bound(m.values.begin(), m.values.end(), q);
+    if (at == m.values.end() || *at != q)
+        return false;
+    const auto i = static_cast<std::size_t>(at - m.values.begin());
+    io::QuantileRecord record(level, q);
+    record.tail_at = m.tail[i];
+    record.tail_above = i + 1 < m.tail.size() ? m.tail[i + 1] : 0.0;
+    return summary::quantile_resolved(record, bound);
 }
 
 } // namespace
@@ -168,6 +182,12 @@ nlohmann::json to_json(const SolveReport& r) {
              {"mean", m.mean},
              {"std", m.std},
              {"quantiles", {{"50", m.q50}, {"90", m.q90}, {"99", m.q99}, {"99.9", m.q999}}},
+             {"quantiles_resolved",
+              bounded ? nlohmann::json{{"50", quantile_resolved(m, 0.5, m.q50, bound)},
+                                       {"90", quantile_resolved(m, 0.9, m.q90, bound)},
+                                       {"99", quantile_resolved(m, 0.99, m.q99, bound)},
+                                       {"99.9", quantile_resolved(m, 0.999, m.q999, bound)}}
+                      : nlohmann::json(nullptr)},
              {"tail", tail}});
     }
     j["variables"] = vars;
@@ -272,13 +292,20 @@ std::string to_text(const SolveReport& r) {
                 marked = marked || !mark.empty();
                 tail += fmt::format("  P(>={})={:.2e}{}", number(v, m.integral), p, mark);
             }
+            // '?': a quantile the error bound could move.
+            auto cell = [&](double level, double q) {
+                const bool moves = bound && !quantile_resolved(m, level, q, *bound);
+                marked = marked || moves;
+                return number(q, m.integral) + (moves ? "?" : "");
+            };
             t += fmt::format("{:<14} {:>12.6g} {:>12.6g} {:>9} {:>9} {:>9} {:>9} {}\n", m.name,
-                             m.mean, m.std, number(m.q50, m.integral), number(m.q90, m.integral),
-                             number(m.q99, m.integral), number(m.q999, m.integral), tail);
+                             m.mean, m.std, cell(0.5, m.q50), cell(0.9, m.q90), cell(0.99, m.q99),
+                             cell(0.999, m.q999), tail);
         }
         if (marked)
             t += fmt::format("unresolved: below {:.1e}, twice the bound, so even the first digit "
-                             "may be wrong; solve again with the --tol shown\n",
+                             "may be wrong; solve again with the --tol shown. '?': a quantile "
+                             "the bound could move.\n",
                              2 * *bound);
     }
     std::string cuts;

@@ -80,10 +80,16 @@ def check_report(report, what, chain, ranks, variables):
           f"wall_seconds {report['wall_seconds']}")
     bound = report.get("probability_error_bound")
     check(isinstance(bound, float) and bound == cert.get("error_estimate") / 2,
-          f"{what}: probability_error_bound {bound!r}, error_estimate {cert.get('error_estimate')!r}")
+          f"{what}: probability_error_bound {bound!r}, "
+          f"error_estimate {cert.get('error_estimate')!r}")
     for v in report["variables"]:
+        marks = v.get("quantiles_resolved") or {}
+        check(sorted(marks) == sorted(v["quantiles"])
+              and all(isinstance(x, bool) for x in marks.values()),
+              f"{what}: quantiles_resolved {marks} of {v['name']}")
         for t in v["tail"]:
-            ok = (t.get("error_bound") == bound and t.get("resolved") == (t["probability"] >= 2 * bound)
+            ok = (t.get("error_bound") == bound
+                  and t.get("resolved") == (t["probability"] >= 2 * bound)
                   and (t.get("tol_to_resolve") is None) == t.get("resolved"))
             check(ok, f"{what}: tail {t} of {v['name']} with bound {bound}")
 
@@ -131,7 +137,8 @@ def check_queue_tails(folder, ranks, launch):
     if far and near:
         check(far["resolved"] is False and far["tol_to_resolve"] == 1e-11,
               f"--tol 1e-6: P(n >= 30) = {far} should be unresolved, --tol 1e-11")
-        check(near["resolved"] is True and abs(near["probability"] - sum(p[4:])) <= near["error_bound"],
+        check(near["resolved"] is True
+              and abs(near["probability"] - sum(p[4:])) <= near["error_bound"],
               f"--tol 1e-6: P(n >= 4) = {near}, closed form {sum(p[4:])}")
     fine = parse(run(["solve", str(chain), "--method", "power", "--tol", "1e-11", "--json", "-q"],
                      **launch), "M/M/1/K at --tol 1e-11")

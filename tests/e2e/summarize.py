@@ -337,7 +337,8 @@ def check_queue_tails(out, ranks):
               f"--tol {tol}: P(far) {far}")
         check(near.get("resolved") is True and abs(near["probability"] - near_exact) <= bound,
               f"--tol {tol}: P(near) {near}, closed form {near_exact}")
-        marked = "P(far) = P(n>=28) = " in done.stdout and "(unresolved: --tol 1e-10)" in done.stdout
+        marked = ("P(far) = P(n>=28) = " in done.stdout
+                  and "(unresolved: --tol 1e-10)" in done.stdout)
         if far_resolved:
             check(abs(far["probability"] - far_exact) <= bound and far["tol_to_resolve"] is None,
                   f"--tol {tol}: P(far) {far}, closed form {far_exact}, bound {bound}")

@@ -61,8 +61,8 @@ def main():
     done = run(["sweep", *common, "-o", prefix], ranks=on)
     check(done.returncode == 0, f"sweep exit {done.returncode}: {done.stderr}")
     header, rows = read_csv(prefix + ".csv")
-    expected = ["arrival", "states", "method", "residual", "error_bound", "mean(queue)", "q0.99(queue)",
-                "P(full)", "rate(arrive)", "rate(leave)"]
+    expected = ["arrival", "states", "method", "residual", "error_bound", "mean(queue)",
+                "q0.99(queue)", "P(full)", "rate(arrive)", "rate(leave)"]
     check(header == expected, f"CSV header {header}, expected {expected}")
     col = {name: i for i, name in enumerate(header)}
     for r in rows:
