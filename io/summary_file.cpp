@@ -6,6 +6,7 @@
 #include <fmt/format.h>
 
 #include <algorithm>
+#include <cmath>
 #include <exception>
 #include <filesystem>
 #include <iterator>
@@ -226,6 +227,14 @@ void write_measure(hid_t parent, const MeasureRecord& m, const std::string& file
     }
     h5::write_whole(g, "quantile_levels", levels, file);
     h5::write_whole(g, "quantile_values", values, file);
+    if (m.mean_error_bound)
+        h5::write_attribute(g, "mean_error_bound", *m.mean_error_bound, file);
+    if (!m.quantiles.empty() && m.quantiles.front().resolved) {
+        std::vector<std::uint64_t> marks;
+        for (const auto& q : m.quantiles)
+            marks.push_back(q.resolved.value_or(false) ? 1 : 0);
+        h5::write_whole(g, "quantile_resolved", marks, file);
+    }
     h5::write_whole(g, "values", m.values, file);
     h5::write_whole(g, "pmf", m.pmf, file);
     h5::write_whole(g, "tail", m.tail, file);
@@ -263,6 +272,18 @@ MeasureRecord read_measure(hid_t f, const std::string& name, const std::string& 
                  where + ": quantile_levels and quantile_values differ in length");
     for (std::size_t i = 0; i < levels.size(); ++i)
         m.quantiles.push_back({levels[i], values[i]});
+    m.mean_error_bound = optional_f64(g, "mean_error_bound", file, where);
+    if (h5::exists(g, "quantile_resolved")) {
+        h5::Handle d = h5::open_dataset(g, "quantile_resolved", file);
+        const auto marks =
+            h5::read_range<std::uint64_t>(d, 0, h5::length_1d(d, file, where), h5::Access::serial,
+                                          file, where + "/quantile_resolved");
+        if (marks.size() != m.quantiles.size())
+            h5::fail(h5::Side::reading, file,
+                     where + ": quantile_resolved and quantile_levels differ in length");
+        for (std::size_t i = 0; i < marks.size(); ++i)
+            m.quantiles[i].resolved = marks[i] != 0;
+    }
     m.values = read_doubles(g, "values", file);
     m.pmf = read_doubles(g, "pmf", file);
     m.tail = read_doubles(g, "tail", file);
@@ -285,6 +306,12 @@ MeasureRecord read_measure(hid_t f, const std::string& name, const std::string& 
 
 void write_parts(hid_t f, const SummaryRecord& s, const std::string& file) {
     h5::Handle summary = h5::open_group(f, "/summary", file);
+    // Copied with /summary's other attributes; it belongs to this summary.
+    if (h5::has_attribute(summary, "probability_error_bound") &&
+        H5Adelete(summary, "probability_error_bound") < 0)
+        h5::fail(h5::Side::writing, file, "cannot replace /summary's probability_error_bound");
+    if (s.probability_error_bound)
+        h5::write_attribute(summary, "probability_error_bound", *s.probability_error_bound, file);
     {
         h5::Handle g = h5::create_group(summary, "measures", file);
         std::vector<std::string> order;
@@ -317,6 +344,8 @@ void write_parts(hid_t f, const SummaryRecord& s, const std::string& file) {
             h5::write_attribute(one, "rate", e.rate, file);
             h5::write_attribute(one, "source", e.source, file);
             h5::write_attribute(one, "expression", e.expression, file);
+            if (e.error_bound)
+                h5::write_attribute(one, "error_bound", *e.error_bound, file);
             order.push_back(e.name);
         }
         write_order(g, order, file);
@@ -402,6 +431,10 @@ SummaryRecord read_summary(const std::string& path) {
     h5::Handle f = h5::open_for_reading(path, std::nullopt);
     require_result_schema(f, path);
     SummaryRecord s;
+    if (h5::exists(f, "/summary")) {
+        h5::Handle g = h5::open_group(f, "/summary", path);
+        s.probability_error_bound = optional_f64(g, "probability_error_bound", path, "/summary");
+    }
     if (h5::exists(f, "/summary/measures")) {
         h5::Handle g = h5::open_group(f, "/summary/measures", path);
         for (const auto& name : optional_list(g, "order", path, "/summary/measures")
@@ -432,6 +465,7 @@ SummaryRecord read_summary(const std::string& path) {
             e.rate = h5::read_f64_attribute(one, "rate", path, one_where);
             e.source = h5::read_string_attribute(one, "source", path, one_where);
             e.expression = h5::read_string_attribute(one, "expression", path, one_where);
+            e.error_bound = optional_f64(one, "error_bound", path, one_where);
             s.events.push_back(std::move(e));
         }
     }
@@ -508,6 +542,11 @@ ResultInfo read_result_info(const std::string& path) {
         if (h5::has_attribute(g, "peak_memory_bytes"))
             c.peak_memory_bytes = h5::read_u64_attribute(g, "peak_memory_bytes", path, where);
         c.detailed_balance_violation = optional_f64(g, "detailed_balance_violation", path, where);
+        info.error_estimate = optional_f64(g, "error_estimate", path, where);
+        c.error_estimate = info.error_estimate.value_or(INFINITY);
+        if (h5::has_attribute(g, "error_estimate_method"))
+            c.error_estimate_method =
+                h5::read_string_attribute(g, "error_estimate_method", path, where);
     }
 
     {

@@ -2,16 +2,20 @@
 // a reader of the result's small parts. Serial: rank 0 calls these.
 //
 // Layout written by write_summary (README "Result file"):
+//   /summary                     attr probability_error_bound (||pi_hat - pi||_1 / 2;
+//                                absent when the result has no error estimate)
 //   /summary/measures            attr order (names as given)
 //   /summary/measures/<m>        attrs name, origin, mean, std, binned, integral,
 //                                q<level> per quantile (e.g. q0.999), and where known
 //                                lower_bound, upper_bound, mass_at_lower_bound,
-//                                mass_at_upper_bound; datasets values, pmf, tail,
-//                                quantile_levels, quantile_values
+//                                mass_at_upper_bound, mean_error_bound; datasets
+//                                values, pmf, tail, quantile_levels, quantile_values,
+//                                quantile_resolved (u64 0/1, with the bound)
 //   /summary/measures/<m>/given/<k>  attrs condition, probability, mean (absent if P = 0)
 //   /summary/probabilities       datasets names, conditions (strings), values (f64)
 //   /summary/events              attrs unit, order
-//   /summary/events/<e>          attrs name, rate, source, expression
+//   /summary/events/<e>          attrs name, rate, source, expression, error_bound
+//                                (labelled events, with the bound)
 //   /summary/likely_states       datasets index (u64), probability (f64), one f64
 //                                dataset per state variable; attr variables (order)
 // A name becomes an HDF5 link name through link_name() ('/' and '%' escaped).
@@ -21,6 +25,7 @@
 #include "summary_record.hpp"
 
 #include <cstdint>
+#include <optional>
 #include <string>
 #include <vector>
 
@@ -31,6 +36,8 @@ struct ResultInfo {
     std::string path;
     ResultOrigin origin;
     CertificateRecord certificate;
+    // certificate.error_estimate as read; absent in results from an older longrun.
+    std::optional<double> error_estimate;
     std::vector<HistoryRecord> history; // in the order the attempts ran
     bool has_distribution = false;
     std::uint64_t states = 0; // length of /distribution (or of /classes/class_of without it)

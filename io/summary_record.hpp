@@ -12,8 +12,18 @@
 namespace longrun::io {
 
 struct QuantileRecord {
+    QuantileRecord() = default;
+    QuantileRecord(double level_, double value_) : level(level_), value(value_) {}
+
     double level = 0; // e.g. 0.999
     double value = 0; // smallest x with P(X <= x) >= level
+    // P(X >= value) and P(X > value): the tail on either side of the quantile,
+    // which decide whether an error bound could move it.
+    double tail_at = 0, tail_above = 0;
+    // Set by summarize when the solve estimated its error: whether the exact
+    // distribution has the same quantile (both tails farther than the bound
+    // from 1 - level).
+    std::optional<bool> resolved;
 };
 
 // E[X | condition] for one --given condition.
@@ -34,6 +44,9 @@ struct MeasureRecord {
     std::vector<double> values, pmf, tail;
     bool binned = false;
     double mean = 0, std = 0;
+    double lowest = 0, highest = 0; // over every state, whatever its probability
+    // (highest - lowest) * ||pi_hat - pi||_1 / 2; absent when the error is unknown.
+    std::optional<double> mean_error_bound;
     std::vector<QuantileRecord> quantiles;
     std::vector<ConditionalRecord> given;
     // Probability at a state variable's declared bounds (truncation check).
@@ -49,11 +62,20 @@ struct ProbabilityRecord {
 };
 
 struct EventRateRecord {
+    EventRateRecord() = default;
+    EventRateRecord(std::string name_, std::string expression_, double rate_, std::string source_)
+        : name(std::move(name_)), expression(std::move(expression_)), rate(rate_),
+          source(std::move(source_)) {}
+
     std::string name;
     std::string expression; // empty for a labelled event; the formula of a --rate
     double rate = 0;        // ctmc: per unit time; dtmc: per step
     // How the rate was found: "transition labels", "event intensities", "--rate".
     std::string source;
+    // Smallest and largest intensity of one state (labelled events only): the
+    // rate's error is at most (highest - lowest) * ||pi_hat - pi||_1 / 2.
+    double lowest_intensity = 0, highest_intensity = 0;
+    std::optional<double> error_bound; // absent when unknown (or a --rate formula)
 };
 
 struct LikelyStateRecord {
@@ -68,6 +90,9 @@ struct SummaryRecord {
     std::vector<EventRateRecord> events;
     std::string rate_unit; // "per unit time" or "per step"
     std::vector<LikelyStateRecord> likely_states;
+    // ||pi_hat - pi||_1 / 2: no probability is off by more (summary/error_bound.hpp).
+    // Absent when the result carries no error estimate (an older longrun).
+    std::optional<double> probability_error_bound;
 };
 
 } // namespace longrun::io

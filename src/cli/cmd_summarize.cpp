@@ -142,7 +142,8 @@ Action add_summarize(CLI::App& app) {
     sub->add_option("--json", o->json, "write everything as JSON to FILE, or '-' for stdout")
         ->type_name("FILE|-");
     sub->add_option("--csv", o->csv,
-                    "write kind,name,statistic,value rows (one number each) to FILE or '-'")
+                    "write kind,name,statistic,value,error_bound,resolved rows (one number each) "
+                    "to FILE or '-'")
         ->type_name("FILE|-");
     sub->add_option("--plot", o->plot,
                     "write PREFIX-<measure>.png and .svg (the distribution, and the tail "

@@ -1,7 +1,10 @@
 #include "report.hpp"
 
+#include "summary/error_bound.hpp"
+
 #include <fmt/format.h>
 
+#include <algorithm>
 #include <cmath>
 
 namespace longrun::cli {
@@ -55,6 +58,19 @@ std::string partition_text(const PartitionOutcome& p) {
     line(partition::Layout::contiguous, p.contiguous);
     line(partition::Layout::graph, p.graph);
     return t;
+}
+
+// Whether the exact distribution has the same quantile `q` at `level`: the
+// tails on either side of q are farther than the bound from 1 - level.
+bool quantile_resolved(const summary::Marginal& m, double level, double q, double bound) {
+    const auto at = std::lower_bound(m.values.begin(), m.values.end(), q);
+    if (at == m.values.end() || *at != q)
+        return false;
+    const auto i = static_cast<std::size_t>(at - m.values.begin());
+    io::QuantileRecord record(level, q);
+    record.tail_at = m.tail[i];
+    record.tail_above = i + 1 < m.tail.size() ? m.tail[i + 1] : 0.0;
+    return summary::quantile_resolved(record, bound);
 }
 
 } // namespace
@@ -142,16 +158,36 @@ nlohmann::json to_json(const SolveReport& r) {
     for (const auto& [phase, seconds] : r.phase_seconds)
         j["phase_seconds"].push_back({{"phase", phase}, {"seconds", seconds}});
     j["peak_memory_bytes_per_rank"] = r.peak_memory_bytes;
+    // Only a distribution with an estimated error bounds its probabilities.
+    const double bound = r.certificate.error_estimate / 2;
+    const bool bounded = r.has_distribution;
+    j["probability_error_bound"] = bounded ? finite_or_null(bound) : nlohmann::json(nullptr);
     nlohmann::json vars = nlohmann::json::array();
     for (const auto& m : r.variables) {
         nlohmann::json tail = nlohmann::json::array();
-        for (const auto& [v, p] : summary::informative_tail(m))
-            tail.push_back({{"at_least", v}, {"probability", p}});
+        for (const auto& [v, p] : summary::informative_tail(m)) {
+            nlohmann::json one = {{"at_least", v}, {"probability", p}};
+            if (bounded) {
+                const bool resolved = summary::probability_resolved(p, bound);
+                const auto tol = summary::tol_to_resolve(p);
+                one["error_bound"] = finite_or_null(bound);
+                one["resolved"] = resolved;
+                one["tol_to_resolve"] =
+                    resolved || !tol ? nlohmann::json(nullptr) : nlohmann::json(*tol);
+            }
+            tail.push_back(one);
+        }
         vars.push_back(
             {{"name", m.name},
              {"mean", m.mean},
              {"std", m.std},
              {"quantiles", {{"50", m.q50}, {"90", m.q90}, {"99", m.q99}, {"99.9", m.q999}}},
+             {"quantiles_resolved",
+              bounded ? nlohmann::json{{"50", quantile_resolved(m, 0.5, m.q50, bound)},
+                                       {"90", quantile_resolved(m, 0.9, m.q90, bound)},
+                                       {"99", quantile_resolved(m, 0.99, m.q99, bound)},
+                                       {"99.9", quantile_resolved(m, 0.999, m.q999, bound)}}
+                      : nlohmann::json(nullptr)},
              {"tail", tail}});
     }
     j["variables"] = vars;
@@ -243,16 +279,34 @@ std::string to_text(const SolveReport& r) {
     if (r.output)
         t += fmt::format("result       {}\n", *r.output);
     if (!r.variables.empty()) {
+        const std::optional<double> bound =
+            r.has_distribution ? std::optional<double>(r.certificate.error_estimate / 2)
+                               : std::nullopt;
+        bool marked = false;
         t += fmt::format("\n{:<14} {:>12} {:>12} {:>9} {:>9} {:>9} {:>9}   tail mass\n", "variable",
                          "mean", "std", "50%", "90%", "99%", "99.9%");
         for (const auto& m : r.variables) {
             std::string tail;
-            for (const auto& [v, p] : summary::informative_tail(m))
-                tail += fmt::format("  P(>={})={:.2e}", number(v, m.integral), p);
+            for (const auto& [v, p] : summary::informative_tail(m)) {
+                const std::string mark = summary::unresolved_mark(p, bound);
+                marked = marked || !mark.empty();
+                tail += fmt::format("  P(>={})={:.2e}{}", number(v, m.integral), p, mark);
+            }
+            // '?': a quantile the error bound could move.
+            auto cell = [&](double level, double q) {
+                const bool moves = bound && !quantile_resolved(m, level, q, *bound);
+                marked = marked || moves;
+                return number(q, m.integral) + (moves ? "?" : "");
+            };
             t += fmt::format("{:<14} {:>12.6g} {:>12.6g} {:>9} {:>9} {:>9} {:>9} {}\n", m.name,
-                             m.mean, m.std, number(m.q50, m.integral), number(m.q90, m.integral),
-                             number(m.q99, m.integral), number(m.q999, m.integral), tail);
+                             m.mean, m.std, cell(0.5, m.q50), cell(0.9, m.q90), cell(0.99, m.q99),
+                             cell(0.999, m.q999), tail);
         }
+        if (marked)
+            t += fmt::format("unresolved: below {:.1e}, twice the bound, so even the first digit "
+                             "may be wrong; solve again with the --tol shown. '?': a quantile "
+                             "the bound could move.\n",
+                             2 * *bound);
     }
     std::string cuts;
     for (const auto& c : r.truncation)

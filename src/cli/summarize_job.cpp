@@ -6,6 +6,7 @@
 #include "io/iterate_file.hpp"
 #include "io/mpi_agree.hpp"
 #include "io/summary_file.hpp"
+#include "summary/error_bound.hpp"
 #include "summary/event_rates.hpp"
 #include "summary/likely_states.hpp"
 #include "summary/measure_summary.hpp"
@@ -115,6 +116,8 @@ SolveRecord solve_record(const io::ResultInfo& info) {
     s.wall_seconds = c.wall_seconds;
     s.ranks = c.ranks;
     s.history = info.history;
+    s.error_estimate = info.error_estimate;
+    s.error_estimate_method = info.certificate.error_estimate_method;
     return s;
 }
 
@@ -251,6 +254,7 @@ SummaryReport run_summary(MPI_Comm comm, const SummaryRequest& request) {
     for (const auto& text : request.rates)
         report.summary.events.push_back(summary::derived_rate(text, labelled));
     report.summary.likely_states = summary::likely_states(comm, chain, pi, request.top);
+    summary::apply_error_bound(report.summary, report.solve.error_estimate);
 
     if (request.store)
         agree_on_local_work(comm, [&] {

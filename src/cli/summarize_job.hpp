@@ -38,6 +38,10 @@ struct SolveRecord {
     double wall_seconds = 0;
     int ranks = 1;
     std::vector<io::HistoryRecord> history; // residual per iteration, per attempt
+    // Estimated ||pi_hat - pi||_1 (inf: not estimated); absent in results from an
+    // older longrun, whose numbers then carry no bound.
+    std::optional<double> error_estimate;
+    std::string error_estimate_method;
 };
 
 struct SummaryReport {

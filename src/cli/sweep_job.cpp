@@ -478,7 +478,9 @@ SweepTable run_sweep(MPI_Comm comm, const SweepRequest& request) {
             ask.top = 0;
             ask.store = request.keep;
             ask.progress = false;
-            row.cells = cells_of(run_summary(comm, ask), asks);
+            const SummaryReport summarized = run_summary(comm, ask);
+            row.cells = cells_of(summarized, asks);
+            row.error_bound = summarized.summary.probability_error_bound;
         } catch (const Error& e) {
             rethrow_at(e, where);
         }

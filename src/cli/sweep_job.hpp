@@ -52,6 +52,9 @@ struct SweepRow {
     bool warm = false;  // the solve started from the previous point's answer
     std::string start;  // how the solve started, as the solve reports it
     std::vector<std::pair<std::string, double>> cells; // column, value
+    // ||pi_hat - pi||_1 / 2 of this point's solve: no P(...) cell is off by more.
+    // Absent when not estimated. A P(...) cell below twice it is unresolved.
+    std::optional<double> error_bound;
     // The largest probability at a state variable's declared bound, e.g.
     // "P(queue = 10)": large where a cut-off (not a real capacity) biases the answer.
     double bound_mass = 0;

@@ -3,6 +3,7 @@
 
 #include "io/error.hpp"
 #include "plot/line_chart.hpp"
+#include "summary/error_bound.hpp"
 
 #include <fmt/format.h>
 
@@ -43,15 +44,31 @@ Json number_or_null(double v) {
     return std::isfinite(v) ? Json(v) : Json(nullptr);
 }
 
+// A tail or probability column, which the error bound may leave unresolved.
+bool is_probability(const std::string& column) {
+    return column.rfind("P(", 0) == 0;
+}
+
+bool unresolved(const SweepRow& row, const std::string& column, double v) {
+    return row.error_bound && is_probability(column) && std::isfinite(v) &&
+           !summary::probability_resolved(v, *row.error_bound);
+}
+
 Json row_json(const SweepRow& row) {
     Json cells = Json::object();
-    for (const auto& [name, value] : row.cells)
+    Json marked = Json::array();
+    for (const auto& [name, value] : row.cells) {
         cells[name] = number_or_null(value);
+        if (unresolved(row, name, value))
+            marked.push_back(name);
+    }
     return Json{{"index", row.index},
                 {"value", row.value},
                 {"states", row.states},
                 {"method", row.method},
                 {"residual", row.residual},
+                {"error_bound", row.error_bound ? number_or_null(*row.error_bound) : Json(nullptr)},
+                {"unresolved", marked},
                 {"seconds", row.seconds},
                 {"warm_start", row.warm},
                 {"start", row.start},
@@ -70,6 +87,8 @@ SweepRow row_from_json(const Json& j) {
     row.seconds = j.at("seconds").get<double>();
     row.warm = j.at("warm_start").get<bool>();
     row.start = j.at("start").get<std::string>();
+    if (j.contains("error_bound") && j.at("error_bound").is_number())
+        row.error_bound = j.at("error_bound").get<double>();
     row.bound_mass = j.value("bound_mass", 0.0);
     row.bound_state = j.value("bound_state", std::string());
     for (const auto& [name, value] : j.at("columns").items())
@@ -125,16 +144,26 @@ std::string file_safe(const std::string& column) {
 } // namespace
 
 std::string sweep_text(const SweepTable& t) {
-    std::vector<std::string> header = {t.axis.parameter, "states", "method", "residual"};
+    std::vector<std::string> header = {t.axis.parameter, "states", "method", "residual",
+                                       "error_bound"};
     header.insert(header.end(), t.columns.begin(), t.columns.end());
     std::vector<std::vector<std::string>> cells;
+    // The smallest unresolved cell: the --tol it needs resolves every marked one.
+    double smallest_unresolved = INFINITY;
     for (const auto& row : t.rows) {
         std::vector<std::string> line = {fmt::format("{:g}", row.value),
                                          fmt::format("{}", row.states), row.method,
-                                         fmt::format("{:.2e}", row.residual)};
+                                         fmt::format("{:.2e}", row.residual),
+                                         row.error_bound && std::isfinite(*row.error_bound)
+                                             ? fmt::format("{:.1e}", *row.error_bound)
+                                             : "-"};
         for (const auto& column : t.columns) {
             const auto v = row.cell(column);
-            line.push_back(v && std::isfinite(*v) ? fmt::format("{:.6g}", *v) : "-");
+            const bool mark = v && unresolved(row, column, *v);
+            if (mark)
+                smallest_unresolved = std::min(smallest_unresolved, *v);
+            line.push_back(v && std::isfinite(*v) ? fmt::format("{:.6g}{}", *v, mark ? "?" : "")
+                                                  : "-");
         }
         cells.push_back(std::move(line));
     }
@@ -157,19 +186,26 @@ std::string sweep_text(const SweepTable& t) {
     print(header);
     for (const auto& line : cells)
         print(line);
+    if (std::isfinite(smallest_unresolved)) {
+        const auto tol = summary::tol_to_resolve(smallest_unresolved);
+        out += fmt::format("?: unresolved, below twice that point's error_bound (even the first "
+                           "digit may be wrong){}\n",
+                           tol ? fmt::format("; --tol {:.0e} resolves every marked cell", *tol)
+                               : std::string());
+    }
     if (t.until)
         out += t.crossing.sentence + "\n";
     return out;
 }
 
 std::string sweep_csv(const SweepTable& t) {
-    std::string out = csv_field(t.axis.parameter) + ",states,method,residual";
+    std::string out = csv_field(t.axis.parameter) + ",states,method,residual,error_bound";
     for (const auto& column : t.columns)
         out += fmt::format(",{}", csv_field(column));
     out += "\n";
     for (const auto& row : t.rows) {
-        out += fmt::format("{},{},{},{}", exact(row.value), row.states, csv_field(row.method),
-                           exact(row.residual));
+        out += fmt::format("{},{},{},{},{}", exact(row.value), row.states, csv_field(row.method),
+                           exact(row.residual), exact(row.error_bound.value_or(NAN)));
         for (const auto& column : t.columns)
             out += fmt::format(",{}", exact(row.cell(column).value_or(NAN)));
         out += "\n";

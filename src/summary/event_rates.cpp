@@ -41,30 +41,57 @@ std::vector<io::EventRateRecord> event_rates(MPI_Comm comm, const io::Chain& cha
     // Decided from the names, which every rank has: a rank without rows has no
     // labels either, yet must reduce the same vector as the others.
     const bool labelled = !chain.event_names.empty();
-    std::vector<double> sums(named + (labelled ? chain.event_names.size() : 0), 0.0);
+    const std::size_t count = named + (labelled ? chain.event_names.size() : 0);
+    std::vector<double> sums(count, 0.0);
+    // The range of one state's intensity bounds the rate's error for a given
+    // error of pi (a rate is a mean of the intensity).
+    std::vector<double> highest(count, 0.0), lowest(count, INFINITY);
     for (std::size_t e = 0; e < named; ++e) {
         const auto& intensity = chain.event_intensities[e].values;
-        for (std::size_t i = 0; i < std::min(rows, intensity.size()); ++i)
+        for (std::size_t i = 0; i < std::min(rows, intensity.size()); ++i) {
             sums[e] += pi[i] * intensity[i];
+            highest[e] = std::max(highest[e], intensity[i]);
+            lowest[e] = std::min(lowest[e], intensity[i]);
+        }
     }
-    if (labelled)
-        for (std::size_t i = 0; i < rows; ++i)
+    if (labelled) {
+        std::vector<double> row_intensity(chain.event_names.size());
+        for (std::size_t i = 0; i < rows; ++i) {
+            std::fill(row_intensity.begin(), row_intensity.end(), 0.0);
             for (auto k = chain.offsets[i]; k < chain.offsets[i + 1]; ++k)
                 if (k < chain.events.size() && chain.events[k] < chain.event_names.size())
-                    sums[named + chain.events[k]] += pi[i] * chain.weights[k];
-    MPI_Allreduce(MPI_IN_PLACE, sums.data(), static_cast<int>(sums.size()), MPI_DOUBLE, MPI_SUM,
-                  comm);
+                    row_intensity[chain.events[k]] += chain.weights[k];
+            for (std::size_t l = 0; l < row_intensity.size(); ++l) {
+                sums[named + l] += pi[i] * row_intensity[l];
+                highest[named + l] = std::max(highest[named + l], row_intensity[l]);
+                lowest[named + l] = std::min(lowest[named + l], row_intensity[l]);
+            }
+        }
+    }
+    const int n = static_cast<int>(count);
+    MPI_Allreduce(MPI_IN_PLACE, sums.data(), n, MPI_DOUBLE, MPI_SUM, comm);
+    MPI_Allreduce(MPI_IN_PLACE, highest.data(), n, MPI_DOUBLE, MPI_MAX, comm);
+    MPI_Allreduce(MPI_IN_PLACE, lowest.data(), n, MPI_DOUBLE, MPI_MIN, comm);
 
+    auto record = [&](const std::string& name, std::size_t e, const char* source) {
+        io::EventRateRecord r;
+        r.name = name;
+        r.rate = sums[e];
+        r.source = source;
+        r.highest_intensity = highest[e];
+        r.lowest_intensity = std::isfinite(lowest[e]) ? std::min(lowest[e], highest[e]) : 0.0;
+        return r;
+    };
     std::vector<io::EventRateRecord> out;
     for (std::size_t e = 0; e < named; ++e)
-        out.push_back({chain.event_intensities[e].name, "", sums[e], "event intensities"});
+        out.push_back(record(chain.event_intensities[e].name, e, "event intensities"));
     for (std::size_t l = 0; labelled && l < chain.event_names.size(); ++l) {
         // Transitions merged from several events carry no single name; with
         // intensities every event is already counted on its own.
         if (named > 0 && chain.event_names[l] == model::several_events_label)
             continue;
         if (!has_name(out, chain.event_names[l]))
-            out.push_back({chain.event_names[l], "", sums[named + l], "transition labels"});
+            out.push_back(record(chain.event_names[l], named + l, "transition labels"));
     }
     return out;
 }
@@ -88,7 +115,10 @@ io::EventRateRecord derived_rate(const std::string& definition,
     for (const auto& r : rates)
         if (model::is_identifier(r.name) && !model::is_reserved_name(r.name))
             scope.constants.emplace_back(r.name, r.rate);
-    io::EventRateRecord out{name, expression, 0.0, "--rate"};
+    io::EventRateRecord out;
+    out.name = name;
+    out.expression = expression;
+    out.source = "--rate";
     try {
         out.rate = model::Expression(model::Text{expression, {}}, scope, role)();
     } catch (const InputError& e) {

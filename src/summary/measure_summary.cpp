@@ -124,8 +124,20 @@ io::MeasureRecord summarize_measure(MPI_Comm comm, const std::string& name,
         var += (d.values[i] - mean) * (d.values[i] - mean) * d.pmf[i];
     r.mean = mean;
     r.std = std::sqrt(std::max(var, 0.0));
-    for (double level : levels)
-        r.quantiles.push_back({level, quantile(d, level)});
+    if (!d.values.empty()) {
+        r.lowest = d.values.front();
+        r.highest = d.values.back();
+    }
+    for (double level : levels) {
+        io::QuantileRecord q{level, quantile(d, level)};
+        const auto at = std::lower_bound(d.values.begin(), d.values.end(), q.value);
+        if (at != d.values.end()) {
+            const auto i = static_cast<std::size_t>(at - d.values.begin());
+            q.tail_at = d.tail[i];
+            q.tail_above = i + 1 < d.tail.size() ? d.tail[i + 1] : 0.0;
+        }
+        r.quantiles.push_back(q);
+    }
 
     const std::size_t bins = std::max<std::size_t>(max_points, 1);
     if (d.values.size() <= bins) {

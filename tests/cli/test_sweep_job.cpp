@@ -73,6 +73,44 @@ class SweepJob : public MpiTest {
     }
 };
 
+TEST_F(SweepJob, EveryPointCarriesItsErrorBoundAndMarksWhatItLeavesUnresolved) {
+    auto r = request("arrival=0.3,0.5");
+    r.method = "power";
+    r.tolerance = 1e-4;
+    const auto table = cli::run_sweep(MPI_COMM_WORLD, r);
+    ASSERT_EQ(table.rows.size(), 2u);
+    for (const auto& row : table.rows) {
+        ASSERT_TRUE(row.error_bound) << row.value;
+        EXPECT_GT(*row.error_bound, 0);
+        EXPECT_LE(*row.error_bound, 0.5e-4) << row.value;
+        EXPECT_LE(std::abs(*row.cell("P(full)") - p_full(row.value)), *row.error_bound)
+            << row.value;
+    }
+    // P(full) at rho = 0.3 is 0.7 0.3^10 / (1 - 0.3^11) ~ 4.1e-6: unresolved when the
+    // point's estimate exceeds it.
+    const bool low_unresolved = p_full(0.3) < 2 * *table.rows[0].error_bound;
+    // At rho = 0.5 it is ~4.9e-4, above 2 * 0.5e-4: resolved whatever the estimate.
+    const std::string text = cli::sweep_text(table);
+    EXPECT_NE(text.find("error_bound"), std::string::npos) << text;
+    EXPECT_EQ(text.find("e-06?") != std::string::npos, low_unresolved) << text;
+    const auto second = text.find("\n    0.5 ");
+    ASSERT_NE(second, std::string::npos) << text;
+    EXPECT_EQ(text.substr(second + 1, text.find('\n', second + 1) - second - 1).find('?'),
+              std::string::npos)
+        << text;
+    if (low_unresolved) {
+        // 4.1e-6 / 10: the largest power of ten below is 1e-7.
+        EXPECT_NE(text.find("--tol 1e-07 resolves every marked cell"), std::string::npos) << text;
+    }
+    const std::string csv = cli::sweep_csv(table);
+    EXPECT_EQ(csv.substr(0, csv.find('\n')).find("arrival,states,method,residual,error_bound,"), 0u)
+        << csv;
+    const auto json = cli::sweep_json(table);
+    EXPECT_EQ(json["rows"][0]["error_bound"].get<double>(), *table.rows[0].error_bound);
+    EXPECT_EQ(json["rows"][0]["unresolved"].size(), low_unresolved ? 1u : 0u);
+    EXPECT_EQ(json["rows"][1]["unresolved"].size(), 0u);
+}
+
 TEST_F(SweepJob, ClosedFormAtEveryPointAndWarmStarts) {
     auto r = request("arrival=0.5:1.5:0.25"); // includes rho = 1
     const auto table = cli::run_sweep(MPI_COMM_WORLD, r);

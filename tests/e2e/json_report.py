@@ -13,6 +13,14 @@ tolerance; ranks and chain.states are right; -q leaves stderr empty; the
 variables are the chain's and their numbers are those written to the result file;
 phase_seconds names the phases in the order they ran, and those up to the write add
 up to wall_seconds (both come from one clock; the write comes after wall_seconds).
+Every tail mass carries error_bound = error_estimate / 2 and resolved = (p >= 2 bound).
+
+Then an M/M/1/K queue, rho = 0.5, K = 30: p_n = (1 - rho) rho^n / (1 - rho^(K+1))
+[Gross & Harris, Fundamentals of Queueing Theory, "Finite queue M/M/1/K"], solved by
+power iteration at --tol 1e-6: its tail P(n >= 30) = p_30 ~ 4.7e-10 is below the error
+estimate, so it is unresolved with tol_to_resolve 1e-11, while P(n >= 4) ~ 6.3e-2 is
+resolved; solved again at 1e-11 the same tail is resolved and within its error_bound
+of the closed form.
 """
 
 import json
@@ -70,6 +78,76 @@ def check_report(report, what, chain, ranks, variables):
     check(abs(before_write - report["wall_seconds"]) <= 1e-6 * max(1.0, report["wall_seconds"]),
           f"{what}: phases before the write add up to {before_write}, "
           f"wall_seconds {report['wall_seconds']}")
+    bound = report.get("probability_error_bound")
+    check(isinstance(bound, float) and bound == cert.get("error_estimate") / 2,
+          f"{what}: probability_error_bound {bound!r}, "
+          f"error_estimate {cert.get('error_estimate')!r}")
+    for v in report["variables"]:
+        marks = v.get("quantiles_resolved") or {}
+        check(sorted(marks) == sorted(v["quantiles"])
+              and all(isinstance(x, bool) for x in marks.values()),
+              f"{what}: quantiles_resolved {marks} of {v['name']}")
+        for t in v["tail"]:
+            ok = (t.get("error_bound") == bound
+                  and t.get("resolved") == (t["probability"] >= 2 * bound)
+                  and (t.get("tol_to_resolve") is None) == t.get("resolved"))
+            check(ok, f"{what}: tail {t} of {v['name']} with bound {bound}")
+
+
+MM1K = """kind: ctmc
+parameters: {arrival: 0.5, service: 1.0}
+variables:
+  n: {from: 0, to: 30}
+start: {n: 0}
+events:
+  - name: arrive
+    when: "n < 30"
+    rate: arrival
+    then: {n: "n + 1"}
+  - name: leave
+    when: "n > 0"
+    rate: service
+    then: {n: "n - 1"}
+"""
+
+
+def tail_at(report, value):
+    for v in report["variables"]:
+        for t in v["tail"]:
+            if t["at_least"] == value:
+                return t
+    check(False, f"no tail P(n >= {value}) in {report['variables']}")
+    return None
+
+
+def check_queue_tails(folder, ranks, launch):
+    k, rho = 30, 0.5
+    p = [(1 - rho) * rho**n / (1 - rho ** (k + 1)) for n in range(k + 1)]
+    # Per rank count: the np1 and np2 tests share the folder and may run at once.
+    model, chain = folder / f"mm1k_np{ranks}.yaml", folder / f"mm1k_np{ranks}.h5"
+    model.write_text(MM1K)
+    done = run(["generate", str(model), "-o", str(chain), "--quiet"])
+    if not check(done.returncode == 0, f"generate mm1k: exit {done.returncode}: {done.stderr}"):
+        return
+    coarse = parse(run(["solve", str(chain), "--method", "power", "--tol", "1e-6", "--json", "-q"],
+                       **launch), "M/M/1/K at --tol 1e-6")
+    if coarse is None:
+        return
+    far, near = tail_at(coarse, 30), tail_at(coarse, 4)
+    if far and near:
+        check(far["resolved"] is False and far["tol_to_resolve"] == 1e-11,
+              f"--tol 1e-6: P(n >= 30) = {far} should be unresolved, --tol 1e-11")
+        check(near["resolved"] is True
+              and abs(near["probability"] - sum(p[4:])) <= near["error_bound"],
+              f"--tol 1e-6: P(n >= 4) = {near}, closed form {sum(p[4:])}")
+    fine = parse(run(["solve", str(chain), "--method", "power", "--tol", "1e-11", "--json", "-q"],
+                     **launch), "M/M/1/K at --tol 1e-11")
+    if fine is None:
+        return
+    far = tail_at(fine, 30)
+    if far:
+        check(far["resolved"] is True and abs(far["probability"] - p[30]) <= far["error_bound"],
+              f"--tol 1e-11: P(n >= 30) = {far}, closed form {p[30]}")
 
 
 def main(argv):
@@ -110,6 +188,7 @@ def main(argv):
     if report is not None:
         check_report(report, "--json with progress", chain, ranks, expect)
     check(chatty.stderr.strip() != "", "without -q, no progress lines appeared on stderr")
+    check_queue_tails(folder, ranks, launch)
     return finish(f"json_report np{ranks}")
 
 

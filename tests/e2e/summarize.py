@@ -21,6 +21,11 @@ Check values (each computed here from its formula, with the source named):
             the throughput X = G(N-1)/G(N) with G(n) = sum_k (1/mu1)^k (1/mu2)^(n-k)
             [Gordon & Newell, Operations Research 15(2), 1967; the ratio of
             normalising constants: Buzen, CACM 16(9), 1973].
+  M/M/1/K   rho = 0.5, K = 30: p_n = (1 - rho) rho^n / (1 - rho^(K+1))  [Gross & Harris,
+            "Finite queue M/M/1/K"]. Solved by power iteration at --tol 1e-6, the tail
+            P(n >= 28) ~ 3.3e-9 is below the estimated error: marked unresolved with
+            --tol 1e-10, while P(n >= 6) ~ 1.6e-2 is resolved; solved at 1e-10 the same
+            tail is resolved and within its error_bound of the closed form.
 Agreement: 1e-8 relative (the solve is certified to 1e-12 here).
 """
 
@@ -281,6 +286,79 @@ def check_cyclic(out, ranks):
     close(event(report, "serve2"), g(n_jobs - 1) / g(n_jobs), "the same flow at station 2")
 
 
+MM1K = """kind: ctmc
+parameters: {arrival: 0.5, service: 1.0}
+variables:
+  n: {from: 0, to: 30}
+start: {n: 0}
+events:
+  - name: arrive
+    when: "n < 30"
+    rate: arrival
+    then: {n: "n + 1"}
+  - name: leave
+    when: "n > 0"
+    rate: service
+    then: {n: "n - 1"}
+"""
+
+
+def check_queue_tails(out, ranks):
+    k, rho = 30, 0.5
+    p = [(1 - rho) * rho**n / (1 - rho ** (k + 1)) for n in range(k + 1)]
+    far_exact, near_exact = sum(p[28:]), sum(p[6:])
+    model, chain = os.path.join(out, "mm1k.yaml"), os.path.join(out, "mm1k.h5")
+    with open(model, "w") as f:
+        f.write(MM1K)
+    done = run(["generate", model, "-o", chain, "--quiet"])
+    check(done.returncode == 0, f"generate mm1k: exit {done.returncode}: {done.stderr}")
+    tails = ["--tail", "far=n>=28", "--tail", "near=n>=6"]
+    for tol, far_resolved in (("1e-6", False), ("1e-10", True)):
+        result = os.path.join(out, f"mm1k-{tol}.h5")
+        done = run(["solve", chain, "-o", result, "--method", "power", "--tol", tol, "--quiet"],
+                   ranks=ranks)
+        if not check(done.returncode == 0, f"solve mm1k --tol {tol}: exit {done.returncode}"):
+            continue
+        json_path, csv_path = result + ".json", result + ".csv"
+        done = summarize([result, *tails, "--json", json_path, "--csv", csv_path], ranks)
+        if done.returncode != 0:
+            continue
+        with open(json_path) as f:
+            report = json.load(f)
+        estimate = report["certificate"]["error_estimate"]
+        bound = report["probability_error_bound"]
+        check(0 < estimate <= float(tol) and bound == estimate / 2,
+              f"--tol {tol}: error_estimate {estimate}, probability_error_bound {bound}")
+        check(f"estimated error ||pi_hat - pi||_1 = {estimate:.2e}" in done.stdout,
+              f"--tol {tol}: the certificate line shows the estimate: {done.stdout[:600]}")
+        probs = {x["name"]: x for x in report["probabilities"]}
+        far, near = probs.get("far", {}), probs.get("near", {})
+        check(far.get("resolved") is far_resolved and far.get("error_bound") == bound,
+              f"--tol {tol}: P(far) {far}")
+        check(near.get("resolved") is True and abs(near["probability"] - near_exact) <= bound,
+              f"--tol {tol}: P(near) {near}, closed form {near_exact}")
+        marked = ("P(far) = P(n>=28) = " in done.stdout
+                  and "(unresolved: --tol 1e-10)" in done.stdout)
+        if far_resolved:
+            check(abs(far["probability"] - far_exact) <= bound and far["tol_to_resolve"] is None,
+                  f"--tol {tol}: P(far) {far}, closed form {far_exact}, bound {bound}")
+            check(not marked, f"--tol {tol}: P(far) still marked unresolved")
+        else:
+            check(far.get("tol_to_resolve") == 1e-10 and marked,
+                  f"--tol {tol}: P(far) {far} not marked with --tol 1e-10: {done.stdout}")
+        with open(csv_path) as f:
+            rows = {r["name"]: r for r in csv.DictReader(f) if r["kind"] == "probability"}
+        check(rows.get("far", {}).get("resolved") == ("true" if far_resolved else "false")
+              and float(rows["far"]["error_bound"]) == bound, f"CSV row of far: {rows.get('far')}")
+        with h5py.File(result, "r") as f:
+            stored = f["summary"].attrs.get("probability_error_bound")
+            check(stored is not None and float(stored) == bound,
+                  f"/summary probability_error_bound {stored}, JSON {bound}")
+            mean_bound = f["summary/measures/n"].attrs.get("mean_error_bound")
+            check(mean_bound is not None and float(mean_bound) == k * bound,
+                  f"/summary/measures/n mean_error_bound {mean_bound}, expected {k * bound}")
+
+
 def main():
     out = sys.argv[1]
     ranks = int(sys.argv[2]) if len(sys.argv) > 2 else None
@@ -288,6 +366,7 @@ def main():
     check_mmck(out, ranks)
     check_erlang(out, ranks)
     check_cyclic(out, ranks)
+    check_queue_tails(out, ranks)
     return finish(f"summarize ({ranks or 1} rank(s))")
 
 

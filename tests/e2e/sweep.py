@@ -61,13 +61,17 @@ def main():
     done = run(["sweep", *common, "-o", prefix], ranks=on)
     check(done.returncode == 0, f"sweep exit {done.returncode}: {done.stderr}")
     header, rows = read_csv(prefix + ".csv")
-    expected = ["arrival", "states", "method", "residual", "mean(queue)", "q0.99(queue)",
-                "P(full)", "rate(arrive)", "rate(leave)"]
+    expected = ["arrival", "states", "method", "residual", "error_bound", "mean(queue)",
+                "q0.99(queue)", "P(full)", "rate(arrive)", "rate(leave)"]
     check(header == expected, f"CSV header {header}, expected {expected}")
     col = {name: i for i, name in enumerate(header)}
     for r in rows:
         lam = float(r[col["arrival"]])
         check(close(float(r[col["P(full)"]]), p_n(lam, K)), f"P(full) at {lam}: {r}")
+        # The bound every probability of the point carries (README "summarize").
+        bound = float(r[col["error_bound"]])
+        check(0 < bound <= 5e-11 and abs(float(r[col["P(full)"]]) - p_n(lam, K)) <= bound,
+              f"P(full) at {lam} off by more than its error_bound: {r}")
         mean = sum(n * p_n(lam, n) for n in range(K + 1))
         check(close(float(r[col["mean(queue)"]]), mean), f"mean(queue) at {lam}: {r}")
         check(int(r[col["states"]]) == K + 1, f"states at {lam}: {r}")
@@ -114,7 +118,7 @@ def main():
     check(len(gathered) == len(rows), f"gathered {len(gathered)} rows, one run {len(rows)}")
     for a, b in zip(gathered, rows):
         for name in header:
-            if name in ("method", "residual"):
+            if name in ("method", "residual", "error_bound"):
                 continue
             check(close(float(a[col[name]]), float(b[col[name]]), 1e-10),
                   f"gathered {name} {a[col[name]]} against {b[col[name]]}")
