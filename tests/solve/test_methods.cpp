@@ -144,19 +144,10 @@ TEST_P(EveryMethod, RandomWalkOnAGraphIsProportionalToDegree) {
     // and the walk has period 2; chords of even length 16 close a cycle of 17
     // edges, so that walk is aperiodic. Every method must handle both.
     for (const std::uint64_t chord : {17, 16}) {
-        std::vector<std::pair<std::uint64_t, std::uint64_t>> edges;
-        const std::uint64_t n = 40;
-        for (std::uint64_t v = 0; v < n; ++v)
-            edges.emplace_back(v, (v + 1) % n);
-        for (std::uint64_t v = 0; v < n; v += 3)
-            edges.emplace_back(v, (v + chord) % n);
-        const auto chain = testing_support::graph_walk(n, edges);
+        const auto edges = testing_support::ring_with_chords(40, 3, chord);
+        const auto chain = testing_support::graph_walk(40, edges);
         const auto pi = solved(chain, "walk.h5");
-        std::vector<double> expected(n, 0);
-        for (auto [a, b] : edges) {
-            expected[a] += 1.0 / (2.0 * edges.size());
-            expected[b] += 1.0 / (2.0 * edges.size());
-        }
+        const auto expected = testing_support::degree_law(40, edges);
         EXPECT_LT(max_abs_difference(pi, expected), agreement) << "chords of length " << chord;
         EXPECT_LT(max_abs_difference(pi, gth_reference(chain)), agreement);
     }

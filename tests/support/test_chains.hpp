@@ -6,6 +6,7 @@
 
 #include <cmath>
 #include <cstdint>
+#include <utility>
 #include <vector>
 
 namespace longrun::testing_support {
@@ -120,6 +121,31 @@ inline io::Chain graph_walk(std::uint64_t nodes,
     d.values = degree;
     chain.variables.push_back(d);
     return chain;
+}
+
+// Edges of a ring of `nodes` with a chord of length `chord` from every `every`-th
+// node. An even ring with odd chords is bipartite (its walk has period 2); an
+// even chord, or an odd ring, closes an odd cycle (the walk is aperiodic).
+inline std::vector<std::pair<std::uint64_t, std::uint64_t>>
+ring_with_chords(std::uint64_t nodes, std::uint64_t every, std::uint64_t chord) {
+    std::vector<std::pair<std::uint64_t, std::uint64_t>> edges;
+    for (std::uint64_t v = 0; v < nodes; ++v)
+        edges.emplace_back(v, (v + 1) % nodes);
+    for (std::uint64_t v = 0; v < nodes; v += every)
+        edges.emplace_back(v, (v + chord) % nodes);
+    return edges;
+}
+
+// pi(v) = deg(v) / 2|E| for the simple random walk on an undirected graph
+// (Levin, Peres & Wilmer, Markov Chains and Mixing Times, sec. 1.4).
+inline std::vector<double>
+degree_law(std::uint64_t nodes, const std::vector<std::pair<std::uint64_t, std::uint64_t>>& edges) {
+    std::vector<double> pi(nodes, 0);
+    for (auto [a, b] : edges) {
+        pi[a] += 1.0 / (2.0 * double(edges.size()));
+        pi[b] += 1.0 / (2.0 * double(edges.size()));
+    }
+    return pi;
 }
 
 // A dtmc from a dense row-stochastic matrix.
