@@ -32,8 +32,6 @@ struct Certificate {
         return residual_tolerance > 0 ? residual <= residual_tolerance
                                       : error_estimate <= error_tolerance;
     }
-    // The residual alone is within `tolerance` (a step towards a certificate).
-    bool residual_within(double tolerance) const noexcept { return valid && residual <= tolerance; }
 };
 
 std::string residual_definition(TimeModel time);

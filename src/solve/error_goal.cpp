@@ -21,6 +21,13 @@ double real_option(const char* name, double fallback) {
     return value;
 }
 
+// Read as a real, so that any number is checked here rather than failing
+// inside PETSc's integer parser; -1 when it is no whole number in 0..1000.
+int int_option(const char* name, int fallback) {
+    const double value = real_option(name, fallback);
+    return value >= 0 && value <= 1000 && value == std::floor(value) ? static_cast<int>(value) : -1;
+}
+
 double distance_1(Vec x, Vec y) {
     VecHandle d;
     check(VecDuplicate(x, d.out()), "VecDuplicate");
@@ -32,15 +39,17 @@ double distance_1(Vec x, Vec y) {
 
 } // namespace
 
-ErrorGoal::ErrorGoal(const TransposedChain& a, const MethodSettings& s, bool exact_corrections)
-    : a_(&a), error_tolerance_(s.tolerance), residual_tolerance_(s.residual_tolerance),
+ErrorGoal::ErrorGoal(const MethodSettings& s, bool exact_corrections)
+    : error_tolerance_(s.tolerance), residual_tolerance_(s.residual_tolerance),
       exact_corrections_(exact_corrections) {
     step_ = real_option("-step", step_);
     floor_ = real_option("-floor", floor_);
-    max_points_ = static_cast<int>(real_option("-max_steps", max_points_));
-    if (!(step_ >= 2) || !(floor_ >= 0) || max_points_ < 3)
-        throw UsageError(fmt::format("-estimate_step must be >= 2, -estimate_floor >= 0 and "
-                                     "-estimate_max_steps >= 3 (given {}, {}, {})",
+    max_points_ = int_option("-max_steps", max_points_);
+    if (!(step_ >= 2) || !std::isfinite(step_) || !(floor_ >= 0) || !std::isfinite(floor_) ||
+        max_points_ < 3)
+        throw UsageError(fmt::format("-estimate_step must be a number >= 2, -estimate_floor a "
+                                     "number >= 0 and -estimate_max_steps a whole number in "
+                                     "3..1000 (given {}, {}, {})",
                                      step_, floor_, max_points_));
     target_ = residual_tolerance_ > 0 ? residual_tolerance_ : error_tolerance_;
 }

@@ -32,8 +32,8 @@
 // "Cost of the error estimate").
 #pragma once
 
-#include "assemble.hpp"
 #include "certificate.hpp"
+#include "handles.hpp"
 
 #include <string>
 #include <vector>
@@ -48,7 +48,7 @@ inline constexpr const char* refinement_estimate_name =
 class ErrorGoal {
   public:
     // `exact_corrections`: the method's corrections at the floor are exact solves.
-    ErrorGoal(const TransposedChain& a, const MethodSettings& s, bool exact_corrections = false);
+    explicit ErrorGoal(const MethodSettings& s, bool exact_corrections = false);
 
     // The residual the method should iterate to now.
     double residual_target() const noexcept { return target_; }
@@ -66,7 +66,6 @@ class ErrorGoal {
     std::string summary() const;
 
   private:
-    const TransposedChain* a_;
     double error_tolerance_;
     double residual_tolerance_; // > 0: certified on the residual (--residual-tol)
     double step_ = 10;

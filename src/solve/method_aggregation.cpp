@@ -343,7 +343,7 @@ Attempt run_aggregation(const TransposedChain& a, Vec warm_start, const MethodSe
     VecHandle candidate = create_state_vector(a);
     long cycle = 0;
     IterantRecombination recombination(top.x, static_cast<int>(o.window));
-    ErrorGoal goal(a, s);
+    ErrorGoal goal(s);
     VecHandle r = create_state_vector(a), combined_x = create_state_vector(a),
               combined_r = create_state_vector(a);
     const double scale = a.time == TimeModel::discrete ? 1.0 : a.uniformisation;

@@ -141,7 +141,7 @@ Attempt run_direct(const TransposedChain& a, Vec warm_start, const MethodSetting
     check(MatSolve(factor, b, x), "MatSolve");
     // Refinement with exact factors: at the rounding floor its corrections
     // measure the rounding error of the solve itself (error_goal.hpp).
-    ErrorGoal goal(a, s, true);
+    ErrorGoal goal(s, true);
     for (int round = 0; round < std::max(1, s.max_rounds); ++round) {
         if (round > 0) { // iterative refinement with the same factors
             check(MatMult(m, x, r), "MatMult");

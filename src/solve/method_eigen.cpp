@@ -69,7 +69,7 @@ Attempt run_eigen(const TransposedChain& a, Vec warm_start, const MethodSettings
         Vec initial[1] = {warm_start};
         check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");
     }
-    ErrorGoal goal(a, s);
+    ErrorGoal goal(s);
     for (int round = 0; round < s.max_rounds; ++round) {
         ctx.base_iteration = attempt.iterations;
         check(EPSSolve(eps), "EPSSolve");

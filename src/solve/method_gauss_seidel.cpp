@@ -103,7 +103,7 @@ Attempt run_gauss_seidel(const TransposedChain& a, Vec warm_start, const MethodS
     VecHandle candidate = create_state_vector(a);
     check(VecSet(zero, 0.0), "VecSet");
     const double scale = a.time == TimeModel::discrete ? 1.0 : 1.0 / a.uniformisation;
-    ErrorGoal goal(a, s);
+    ErrorGoal goal(s);
     ConvergenceWatch watch(window, goal.residual_target(), max_it);
     std::string stopped = fmt::format("sweep limit {} reached (-gs_max_it)", max_it);
 

@@ -196,7 +196,7 @@ Attempt run_linear(const TransposedChain& a, Vec warm_start, const MethodSetting
     if (s.progress)
         s.progress->begin("linear", s.tolerance);
 
-    ErrorGoal goal(a, s);
+    ErrorGoal goal(s);
     // -linear_pin STATE: solve the pinned system at a state the user knows to be likely.
     PetscInt chosen = -1;
     PetscBool given = PETSC_FALSE;

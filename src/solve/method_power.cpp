@@ -89,7 +89,7 @@ Attempt run_power(const TransposedChain& a, Vec warm_start, const MethodSettings
     normalise(x);
     VecHandle y = create_state_vector(a), step = create_state_vector(a);
     VecHandle earlier_step = create_state_vector(a), candidate = create_state_vector(a);
-    ErrorGoal goal(a, s);
+    ErrorGoal goal(s);
     ConvergenceWatch watch(window, goal.residual_target(), max_it);
     std::string stopped = fmt::format("iteration limit {} reached (-power_max_it)", max_it);
 

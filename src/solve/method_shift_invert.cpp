@@ -115,7 +115,7 @@ Attempt run_shift_invert(const TransposedChain& a, Vec warm_start, const MethodS
         check(EPSSetInitialSpace(eps, 1, initial), "EPSSetInitialSpace");
     }
     VecHandle x = create_state_vector(a);
-    ErrorGoal goal(a, s);
+    ErrorGoal goal(s);
     for (int round = 0; round < s.max_rounds; ++round) {
         ctx.base_iteration = attempt.iterations;
         check(EPSSolve(eps), "EPSSolve");
